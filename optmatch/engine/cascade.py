@@ -137,13 +137,16 @@ class _Grid:
 
     On a uniform run the phasors are built by repeated doubling from one exponential per
     candidate (error ~1e-13), which is several times cheaper than sin and cos per point.
+    A run is accepted as uniform only if every point lies within a few ulps of the straight
+    line through the run's ends, and its step is taken from those ends, so the phase error
+    stays at rounding level even for long lines on long grids.
     """
 
     def __init__(self, freq: np.ndarray):
         self.freq = np.asarray(freq, dtype=float)
         self.omega = 2.0 * np.pi * self.freq
         self.sqrt_f = np.sqrt(self.freq)
-        self.runs: list[tuple[int, int]] = []
+        self.runs: list[tuple[int, int, float]] = []  # (start, stop, step of ω in rad/s)
         f = self.freq
         start = 0
         while start < f.size:
@@ -154,21 +157,36 @@ class _Grid:
                 while stop + 1 < f.size and abs((f[stop + 1] - f[stop]) - step) <= tol:
                     stop += 1
                 stop += 1
-            self.runs.append((start, stop))
+            stop = self._straight_run(f, start, stop)
+            length = stop - start
+            d_omega = (self.omega[stop - 1] - self.omega[start]) / (length - 1) if length > 1 else 0.0
+            self.runs.append((start, stop, d_omega))
             start = stop
+
+    @staticmethod
+    def _straight_run(f: np.ndarray, start: int, stop: int) -> int:
+        """Shorten ``[start, stop)`` until its points sit on one straight line to a few ulps."""
+        while stop - start > 2:
+            seg = f[start:stop]
+            step = (seg[-1] - seg[0]) / (seg.size - 1)
+            dev = np.max(np.abs(seg - (seg[0] + step * np.arange(seg.size))))
+            if dev <= 8.0 * np.spacing(np.max(np.abs(seg))):
+                break
+            stop = start + max(2, (stop - start) // 2)
+        return stop
 
     def phasor(self, tau: np.ndarray) -> np.ndarray:
         """exp(jωτ) for a column of delays ``tau`` (n, 1), shaped (n, F)."""
         n = tau.shape[0]
         out = np.empty((n, self.freq.size), dtype=complex)
         t = tau[:, 0]
-        for start, stop in self.runs:
+        for start, stop, d_omega in self.runs:
             length = stop - start
             w0 = self.omega[start]
             out[:, start] = np.exp(1j * w0 * t)
             if length == 1:
                 continue
-            step = np.exp(1j * (self.omega[start + 1] - w0) * t)
+            step = np.exp(1j * d_omega * t)
             done = 1
             while done < length:
                 m = min(done, length - done)
