@@ -1,0 +1,9 @@
+"""Placeholder registration (filled in below)."""
+
+from __future__ import annotations
+
+import argparse
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    return None

@@ -1,0 +1,249 @@
+"""Networks to be designed: element specifications, their free parameters, and the mapping from a
+search vector onto engine stages and parameter arrays.
+
+Units: delay s, physical length m, impedance Ω, loss Np/(m·√Hz) and Np/(m·Hz), lumped Ω/H/F.
+A network lists its elements from the load outwards.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field, replace
+from typing import Literal
+
+import numpy as np
+
+from optmatch.engine import Stage
+from optmatch.units import C0
+
+ElementKind = Literal["line", "shunt_stub", "series_stub", "lumped"]
+End = Literal["open", "short", "either"]
+LengthBasis = Literal["delay", "physical"]
+
+
+@dataclass(frozen=True)
+class Bound:
+    """A value that is fixed (``lo == hi``) or free in ``[lo, hi]``; ``log`` spaces the search."""
+
+    lo: float
+    hi: float
+    log: bool = False
+
+    @property
+    def fixed(self) -> bool:
+        return self.lo == self.hi
+
+    def from_unit(self, u: np.ndarray) -> np.ndarray:
+        """Map u ∈ [0, 1] onto the bound."""
+        if self.log:
+            return np.exp(np.log(self.lo) + u * (np.log(self.hi) - np.log(self.lo)))
+        return self.lo + u * (self.hi - self.lo)
+
+    def to_unit(self, x: float) -> float:
+        """Inverse of :meth:`from_unit` (clipped to [0, 1])."""
+        if self.fixed:
+            return 0.0
+        if self.log:
+            u = (np.log(x) - np.log(self.lo)) / (np.log(self.hi) - np.log(self.lo))
+        else:
+            u = (x - self.lo) / (self.hi - self.lo)
+        return float(np.clip(u, 0.0, 1.0))
+
+
+@dataclass(frozen=True)
+class Medium:
+    """A line medium: characteristic impedance, velocity factor and loss model.
+
+    Attenuation per metre: α(f) = kc·√f + kd·f in Np/m (kc in Np/(m·√Hz), kd in Np/(m·Hz)).
+    """
+
+    z0: float
+    vf: float = 1.0
+    kc: float = 0.0
+    kd: float = 0.0
+    name: str = ""
+
+
+@dataclass(frozen=True)
+class ElementSpec:
+    """One element of the network to design.
+
+    Lines and stubs: ``length`` bound (basis ``delay`` in s, or ``physical`` in m), ``media``: the
+    media it may be made of (one = fixed; several = a discrete choice), ``z0_free``: a free Z0
+    bound replacing the media's Z0 (printed lines), ``end`` for stubs, ``extra_delay``: fixed
+    delay (s) added by connectors or adapters at this element (lossless).
+    Lumped parts: ``connection``, ``part`` and ``value`` bound (Ω, H or F).
+    """
+
+    kind: ElementKind
+    length: Bound | None = None
+    length_basis: LengthBasis = "delay"
+    media: tuple[Medium, ...] = (Medium(50.0),)
+    z0_free: Bound | None = None
+    end: End | None = None
+    extra_delay: float = 0.0
+    connection: Literal["series", "shunt"] = "series"
+    part: Literal["r", "l", "c"] | None = None
+    value: Bound | None = None
+    label: str = ""
+
+    @property
+    def is_line_like(self) -> bool:
+        return self.kind != "lumped"
+
+    def stage(self) -> Stage:
+        if self.kind == "line":
+            return Stage("line")
+        if self.kind == "shunt_stub":
+            return Stage("stub", "shunt")
+        if self.kind == "series_stub":
+            return Stage("stub", "series")
+        return Stage("lumped", self.connection, self.part)
+
+
+@dataclass(frozen=True)
+class Choice:
+    """Discrete choices for one network: per element, the medium index and the stub end."""
+
+    medium: tuple[int, ...]
+    short: tuple[bool, ...]
+
+
+@dataclass(frozen=True)
+class FreeParam:
+    """One continuous search coordinate: which element and which quantity it sets."""
+
+    element: int
+    quantity: Literal["length", "z0", "value"]
+    bound: Bound
+
+
+@dataclass(frozen=True)
+class NetworkSpec:
+    """An ordered network (load outwards) and the search space it implies."""
+
+    elements: tuple[ElementSpec, ...]
+    free: tuple[FreeParam, ...] = field(init=False)
+
+    def __post_init__(self) -> None:
+        free = []
+        for i, el in enumerate(self.elements):
+            if el.is_line_like and el.length is not None and not el.length.fixed:
+                free.append(FreeParam(i, "length", el.length))
+            if el.is_line_like and el.z0_free is not None and not el.z0_free.fixed:
+                free.append(FreeParam(i, "z0", el.z0_free))
+            if el.kind == "lumped" and el.value is not None and not el.value.fixed:
+                free.append(FreeParam(i, "value", el.value))
+        object.__setattr__(self, "free", tuple(free))
+
+    @property
+    def dim(self) -> int:
+        return len(self.free)
+
+    @property
+    def stages(self) -> list[Stage]:
+        return [el.stage() for el in self.elements]
+
+    def choice_space(self) -> list[tuple[str, int, list]]:
+        """The discrete dimensions: (name, element index, options)."""
+        out: list[tuple[str, int, list]] = []
+        for i, el in enumerate(self.elements):
+            if el.is_line_like and len(el.media) > 1:
+                out.append((f"e{i}.medium", i, list(range(len(el.media)))))
+            if el.kind in ("shunt_stub", "series_stub") and el.end == "either":
+                out.append((f"e{i}.end", i, ["open", "short"]))
+        return out
+
+    def default_choice(self) -> Choice:
+        return Choice(
+            medium=tuple(0 for _ in self.elements),
+            short=tuple(el.end == "short" for el in self.elements),
+        )
+
+    def choice_from(self, picks: dict[str, object]) -> Choice:
+        """Build a :class:`Choice` from ``{name: option}`` as listed by :meth:`choice_space`."""
+        base = self.default_choice()
+        medium, short = list(base.medium), list(base.short)
+        for name, i, _ in self.choice_space():
+            if name not in picks:
+                continue
+            if name.endswith(".medium"):
+                medium[i] = int(picks[name])  # type: ignore[arg-type]
+            else:
+                short[i] = picks[name] == "short"
+        return Choice(tuple(medium), tuple(short))
+
+    def values(self, u: np.ndarray) -> list[dict[str, np.ndarray]]:
+        """Per element, the physical quantities set by unit vectors ``u`` (n, dim)."""
+        u = np.atleast_2d(u)
+        n = u.shape[0]
+        out: list[dict[str, np.ndarray]] = []
+        for el in self.elements:
+            d: dict[str, np.ndarray] = {}
+            if el.is_line_like:
+                lb = el.length if el.length is not None else Bound(0.0, 0.0)
+                d["length"] = np.full(n, lb.lo)
+                if el.z0_free is not None:
+                    d["z0"] = np.full(n, el.z0_free.lo)
+            else:
+                vb = el.value if el.value is not None else Bound(0.0, 0.0)
+                d["value"] = np.full(n, vb.lo)
+            out.append(d)
+        for col, fp in enumerate(self.free):
+            out[fp.element][fp.quantity] = fp.bound.from_unit(u[:, col])
+        return out
+
+    def delays(self, values: list[dict[str, np.ndarray]], choice: Choice) -> list[np.ndarray | None]:
+        """Delay (s) of every line-like element's cable section, excluding allowances."""
+        res: list[np.ndarray | None] = []
+        for i, el in enumerate(self.elements):
+            if not el.is_line_like:
+                res.append(None)
+                continue
+            med = el.media[choice.medium[i]]
+            length = values[i]["length"]
+            res.append(length if el.length_basis == "delay" else length / (med.vf * C0))
+        return res
+
+    def engine_params(self, u: np.ndarray, choice: Choice) -> list[dict]:
+        """Engine parameter dicts for unit vectors ``u`` (n, dim) under discrete ``choice``."""
+        vals = self.values(u)
+        delays = self.delays(vals, choice)
+        params: list[dict] = []
+        for i, el in enumerate(self.elements):
+            if not el.is_line_like:
+                params.append({"value": vals[i]["value"]})
+                continue
+            med = el.media[choice.medium[i]]
+            tau = delays[i]
+            metres = tau * med.vf * C0
+            p = {
+                "z0": vals[i].get("z0", med.z0),
+                "delay": tau + el.extra_delay,
+            }
+            if med.kc or med.kd:
+                p["loss_c"] = med.kc * metres
+                p["loss_d"] = med.kd * metres
+            if el.kind != "line":
+                p["short"] = choice.short[i]
+            params.append(p)
+        return params
+
+    def total_delay(self, u: np.ndarray, choice: Choice) -> np.ndarray:
+        """Sum of line and stub delays (s) including allowances, per candidate: the build size."""
+        vals = self.values(u)
+        total = np.zeros(np.atleast_2d(u).shape[0])
+        for el, tau in zip(self.elements, self.delays(vals, choice), strict=True):
+            if tau is not None:
+                total = total + tau + el.extra_delay
+        return total
+
+
+def with_elements(spec: NetworkSpec, elements: Sequence[ElementSpec]) -> NetworkSpec:
+    """A copy of ``spec`` with other elements (recomputes the free parameters)."""
+    return NetworkSpec(tuple(elements))
+
+
+def fix_element(el: ElementSpec, **changes) -> ElementSpec:
+    """A copy of one element with some fields changed."""
+    return replace(el, **changes)

@@ -1,0 +1,150 @@
+"""Inner search for one set of discrete choices: a vectorised population search over the unit
+cube, then a gradient polish of the best few on a smooth minimax surrogate.
+
+Pure numerics (numpy, scipy); the objective is any function mapping unit vectors (n, d) to a
+score per row (higher is better), so whole generations go through the engine as one batch.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import minimize
+
+Objective = Callable[[np.ndarray], np.ndarray]
+
+
+@dataclass(frozen=True)
+class InnerResult:
+    """Best unit vectors found (best first) with their scores, and the evaluation count."""
+
+    u: np.ndarray
+    score: np.ndarray
+    evaluations: int
+
+
+def _reflect(x: np.ndarray) -> np.ndarray:
+    """Fold values back into [0, 1] (keeps the step length, unlike clipping)."""
+    x = np.abs(x)
+    x = np.where(x > 1.0, 2.0 - x, x)
+    return np.clip(x, 0.0, 1.0)
+
+
+def population_search(
+    score: Objective,
+    dim: int,
+    rng: np.random.Generator,
+    seeds: np.ndarray | None = None,
+    population: int = 64,
+    generations: int = 60,
+) -> InnerResult:
+    """Differential evolution (current-to-pbest/1/bin with adaptive F and CR, after JADE).
+
+    ``seeds`` (k, dim) enter the first generation; the rest is a Latin hypercube sample.
+    """
+    pop_n = max(population, 8)
+    # Latin hypercube initial sample
+    cut = (rng.permuted(np.tile(np.arange(pop_n), (dim, 1)), axis=1).T + rng.random((pop_n, dim))) / pop_n
+    pop = cut
+    if seeds is not None and len(seeds):
+        k = min(len(seeds), pop_n // 2)
+        pop[:k] = np.clip(seeds[:k], 0.0, 1.0)
+    fit = score(pop)
+    evals = pop_n
+    mu_f, mu_cr = 0.5, 0.7
+    for _ in range(generations):
+        order = np.argsort(-fit)
+        p_top = max(2, int(0.15 * pop_n))
+        pbest = pop[order[rng.integers(0, p_top, pop_n)]]
+        f = np.clip(mu_f + 0.1 * rng.standard_cauchy(pop_n), 0.05, 1.0)[:, None]
+        cr = np.clip(rng.normal(mu_cr, 0.1, pop_n), 0.0, 1.0)[:, None]
+        r1 = rng.integers(0, pop_n, pop_n)
+        r2 = rng.integers(0, pop_n, pop_n)
+        mutant = pop + f * (pbest - pop) + f * (pop[r1] - pop[r2])
+        mutant = _reflect(mutant)
+        cross = rng.random((pop_n, dim)) < cr
+        cross[np.arange(pop_n), rng.integers(0, dim, pop_n)] = True
+        trial = np.where(cross, mutant, pop)
+        trial_fit = score(trial)
+        evals += pop_n
+        better = trial_fit >= fit
+        if np.any(better):
+            good_f, good_cr = f[better, 0], cr[better, 0]
+            mu_f = 0.9 * mu_f + 0.1 * float(np.sum(good_f**2) / max(np.sum(good_f), 1e-12))
+            mu_cr = 0.9 * mu_cr + 0.1 * float(np.mean(good_cr))
+        pop = np.where(better[:, None], trial, pop)
+        fit = np.where(better, trial_fit, fit)
+    order = np.argsort(-fit)
+    return InnerResult(u=pop[order], score=fit[order], evaluations=evals)
+
+
+def polish(
+    smooth: Callable[[np.ndarray, float], np.ndarray],
+    u0: np.ndarray,
+    betas: tuple[float, ...] = (2.0, 8.0, 32.0),
+    step: float = 1e-6,
+    max_iter: int = 60,
+) -> tuple[np.ndarray, int]:
+    """Local polish of one point with L-BFGS-B on ``-smooth(u, β)`` within the unit cube.
+
+    ``smooth(u (n, d), β) -> (n,)`` is the smooth score; its gradient is taken by forward
+    differences evaluated as one batch of d + 1 points.  Returns the point and evaluations used.
+    """
+    d = u0.size
+    evals = 0
+    u = np.asarray(u0, dtype=float).copy()
+    eye = np.eye(d) * step
+
+    for beta in betas:
+
+        def fun(x: np.ndarray, beta: float = beta) -> tuple[float, np.ndarray]:
+            nonlocal evals
+            pts = np.vstack([x, np.clip(x + eye, 0.0, 1.0)])
+            vals = -smooth(pts, beta)
+            evals += d + 1
+            h = pts[1:] - x
+            h_diag = np.where(np.abs(np.diag(h)) > 0, np.diag(h), step)
+            grad = (vals[1:] - vals[0]) / h_diag
+            return float(vals[0]), grad
+
+        res = minimize(fun, u, jac=True, method="L-BFGS-B", bounds=[(0.0, 1.0)] * d,
+                       options={"maxiter": max_iter})
+        if np.all(np.isfinite(res.x)):
+            u = res.x
+    return u, evals
+
+
+def inner_search(
+    score: Objective,
+    smooth: Callable[[np.ndarray, float], np.ndarray],
+    dim: int,
+    rng: np.random.Generator,
+    seeds: np.ndarray | None = None,
+    population: int = 64,
+    generations: int = 60,
+    polish_top: int = 3,
+) -> InnerResult:
+    """Population search, then polish the best ``polish_top`` distinct points; best first."""
+    if dim == 0:
+        u = np.zeros((1, 0))
+        return InnerResult(u=u, score=score(u), evaluations=1)
+    res = population_search(score, dim, rng, seeds, population, generations)
+    evals = res.evaluations
+    picked: list[np.ndarray] = []
+    for cand in res.u:
+        if all(np.max(np.abs(cand - p)) > 1e-3 for p in picked):
+            picked.append(cand)
+        if len(picked) >= polish_top:
+            break
+    polished = []
+    for cand in picked:
+        x, used = polish(smooth, cand)
+        evals += used
+        polished.append(x)
+    allu = np.vstack([np.array(polished), res.u])
+    allscore = np.concatenate([score(np.array(polished)), res.score])
+    evals += len(polished)
+    order = np.argsort(-allscore, kind="stable")
+    return InnerResult(u=allu[order], score=allscore[order], evaluations=evals)
