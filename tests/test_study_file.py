@@ -1,0 +1,401 @@
+"""Study files: validation into typed models and resolution into a Problem.
+
+Numbers are checked against physical identities (quarter- and half-wave lines, resonance),
+facts of the trade, and scikit-rf as an independent reader of Touchstone files.
+"""
+
+from __future__ import annotations
+
+import math
+import shutil
+import textwrap
+from pathlib import Path
+
+import numpy as np
+import pytest
+import skrf
+
+from optmatch.domain.templates import build_template
+from optmatch.study.loader import StudyFileError, check_study, load_study
+from optmatch.units import C0
+
+DATA = Path(__file__).parent / "data"
+WHIP = DATA / "whip_invented.s1p"  # invented test data, 400-460 MHz in 1 MHz steps
+EXAMPLES = Path(__file__).parent.parent / "configs" / "examples"
+
+MASK = """
+mask:
+  segments:
+    - {from: 410MHz, to: 450MHz, return_loss: 15}
+"""
+
+
+def write(tmp_path: Path, text: str, name: str = "study.yaml") -> Path:
+    p = tmp_path / name
+    p.write_text(textwrap.dedent(text), encoding="utf-8")
+    return p
+
+
+def problems_of(path: Path) -> list[str]:
+    with pytest.raises(StudyFileError) as info:
+        load_study(path)
+    probs = info.value.problems
+    assert probs, "a StudyFileError carries at least one problem"
+    for line in probs:
+        assert line.startswith(f"{path}: "), line
+        assert "\n" not in line
+    assert str(info.value) == "\n".join(probs)
+    assert check_study(path) == probs
+    return probs
+
+
+def single_point_zin(study_text: str, tmp_path: Path) -> complex:
+    """Input impedance (Ω) of a study's fixed network at its single mask frequency."""
+    study = load_study(write(tmp_path, study_text))
+    net = study.problem.network
+    assert net.dim == 0
+    r = study.problem.response(np.zeros((1, 0)), net.default_choice())
+    return complex(r.zin[0, 0])
+
+
+# ------------------------------------------------------------------ loads
+
+
+def test_impedance_load_is_constant_on_the_grid(tmp_path):
+    study = load_study(write(tmp_path, textwrap.dedent("""
+        load: {impedance: 60-j80}
+        network: {template: single_shunt_stub}
+        """) + MASK))
+    # Physical identity: a frequency-independent impedance is the same at every grid point.
+    assert np.allclose(study.problem.zload, 60 - 80j, rtol=0, atol=1e-12)
+    assert study.problem.grid.freq.size == 41  # default points per segment (mask.DEFAULT_POINTS)
+
+
+def test_series_rl_load_matches_trade_value(tmp_path):
+    study = load_study(write(tmp_path, """
+        load: {series_rlc: {r: 100, l: 100nH}}
+        mask: {segments: [{from: 160MHz, to: 160MHz, return_loss: 10}]}
+        network: {template: single_series_stub}
+        """))
+    z = study.problem.zload[0]
+    # Fact of the trade (common practice, no source): 100 Ω + 100 nH ≈ 100 + j100.5 Ω at 160 MHz.
+    assert z.real == pytest.approx(100.0)
+    assert z.imag == pytest.approx(100.5, abs=0.1)
+
+
+def test_parallel_rlc_load_is_pure_r_at_resonance(tmp_path):
+    l_h, c_f = 10e-9, 2e-12
+    f0 = 1.0 / (2 * math.pi * math.sqrt(l_h * c_f))
+    study = load_study(write(tmp_path, f"""
+        load: {{parallel_rlc: {{r: 200, l: 10nH, c: 2pF}}}}
+        mask: {{segments: [{{from: {f0!r}, to: {f0!r}, return_loss: 10}}]}}
+        network: {{template: single_shunt_stub}}
+        """))
+    # Physical identity: at f0 = 1/(2π√(LC)) the L and C susceptances cancel, Z = R.
+    assert study.problem.zload[0] == pytest.approx(200.0 + 0j, abs=1e-6)
+
+
+def test_touchstone_load_agrees_with_scikit_rf(tmp_path):
+    shutil.copy(WHIP, tmp_path / "whip.s1p")
+    study = load_study(write(tmp_path, textwrap.dedent("""
+        load: {touchstone: whip.s1p}
+        network: {template: double_stub}
+        """) + MASK))
+    ref = skrf.Network(str(WHIP))
+    on_grid = np.isin(ref.f, study.problem.grid.freq)
+    # scikit-rf as an independent reader: grid points fall on measured points (1 MHz steps).
+    assert on_grid.sum() == 41
+    assert np.allclose(study.problem.zload, ref.z[on_grid, 0, 0], rtol=1e-9)
+
+
+def test_digest_covers_touchstone_bytes_not_key_order(tmp_path):
+    shutil.copy(WHIP, tmp_path / "whip.s1p")
+    body = "load: {touchstone: whip.s1p}\nnetwork: {template: double_stub}\n" + MASK
+    reordered = MASK + "\nnetwork: {template: double_stub}\nload: {touchstone: whip.s1p}\n"
+    a = load_study(write(tmp_path, body, "a.yaml")).digest
+    b = load_study(write(tmp_path, reordered, "b.yaml")).digest
+    assert a == b  # identity: the digest hashes canonical JSON, so key order does not matter
+    text = (tmp_path / "whip.s1p").read_text().replace("! not a measurement", "! not a measurement either")
+    (tmp_path / "whip.s1p").write_text(text)
+    assert load_study(write(tmp_path, body, "a.yaml")).digest != a  # the file bytes are part of it
+
+
+# ------------------------------------------------------------------ templates
+
+F_REF = 433e6
+
+
+@pytest.mark.parametrize(
+    ("template", "kinds"),
+    [
+        ("single_shunt_stub", ["line", "shunt_stub"]),
+        ("single_series_stub", ["line", "series_stub"]),
+        ("double_stub", ["line", "shunt_stub", "line", "shunt_stub"]),
+        ("triple_stub", ["line", "shunt_stub", "line", "shunt_stub", "line", "shunt_stub"]),
+    ],
+)
+def test_stub_templates(tmp_path, template, kinds):
+    study = load_study(write(tmp_path, textwrap.dedent(f"""
+        reference: 433MHz
+        load: {{impedance: 60-j80}}
+        network: {{template: {template}}}
+        """) + MASK))
+    els = study.problem.network.elements
+    assert [e.kind for e in els] == kinds
+    half_wave = 1.0 / (2 * F_REF)  # identity: 180° at f is a delay of 1/(2f)
+    eighth_wave = 1.0 / (8 * F_REF)  # identity: 0.125 λ at f is a delay of 1/(8f)
+    for i, e in enumerate(els):
+        assert e.media[0].z0 == 50.0 and e.length_basis == "delay"
+        if i > 0 and e.kind == "line":  # stub spacing, fixed
+            assert e.length.lo == pytest.approx(eighth_wave) and e.length.fixed
+        else:
+            assert e.length.lo == 0.0 and e.length.hi == pytest.approx(half_wave)
+        if e.kind != "line":
+            assert e.end == "either"
+    assert study.problem.network.dim == len(kinds) - (len(kinds) // 2 - 1)
+
+
+def test_stepped_line_quarter_waves_with_free_z0(tmp_path):
+    study = load_study(write(tmp_path, textwrap.dedent("""
+        reference: 433MHz
+        load: {impedance: 100}
+        network: {template: stepped_line, sections: 3}
+        """) + MASK))
+    els = study.problem.network.elements
+    assert len(els) == 3
+    for e in els:
+        # Identity: 90° at 433 MHz is a delay of 1/(4·433e6) s.
+        assert e.length.fixed and e.length.lo == pytest.approx(1.0 / (4 * F_REF))
+        assert (e.z0_free.lo, e.z0_free.hi) == (10.0, 250.0)  # default range of the study format
+        assert e.media[0].z0 == pytest.approx(130.0)  # identity: midpoint of 10..250 Ω
+    assert study.problem.network.dim == 3
+
+
+def test_reference_defaults_to_mask_centre(tmp_path):
+    study = load_study(write(tmp_path, """
+        load: {impedance: 60-j80}
+        network: {template: double_stub, spacing: 45deg, max_length: 0.25wl, end: short, z0: [50, 75]}
+        mask:
+          segments:
+            - {from: 400MHz, to: 420MHz, return_loss: 10}
+            - {from: 440MHz, to: 460MHz, return_loss: 12}
+        """))
+    p = study.problem
+    assert p.f_ref == pytest.approx(430e6)  # identity: centre of 400..460 MHz
+    spacing = p.network.elements[2]
+    assert spacing.length.lo == pytest.approx(1.0 / (8 * 430e6))  # identity: 45° = λ/8
+    assert p.network.elements[1].length.hi == pytest.approx(1.0 / (4 * 430e6))  # 0.25 λ
+    assert p.network.elements[1].end == "short"
+    assert [m.z0 for m in spacing.media] == [50.0, 75.0]
+
+
+def test_template_with_physical_max_length(tmp_path):
+    study = load_study(write(tmp_path, textwrap.dedent("""
+        load: {impedance: 60-j80}
+        network: {template: single_shunt_stub, max_length: 300mm, vf: 0.66}
+        """) + MASK))
+    for e in study.problem.network.elements:
+        assert e.length_basis == "physical" and e.length.hi == pytest.approx(0.3)  # 300 mm in metres
+        assert e.media[0].vf == 0.66
+
+
+def test_templates_are_pure_and_reject_unknown_names():
+    from optmatch.domain.network import Medium
+
+    els = build_template("triple_stub", F_REF, (Medium(50.0),))
+    assert len(els) == 6
+    with pytest.raises(ValueError, match="unknown template"):
+        build_template("quad_stub", F_REF, (Medium(50.0),))
+
+
+# ------------------------------------------------------------------ explicit elements
+
+
+def test_elements_resolve_lengths_media_and_lumped(tmp_path):
+    study = load_study(write(tmp_path, """
+        name: whip-uhf
+        description: free text
+        system: 50 ohm
+        reference: 433MHz
+        load: {impedance: 60-j80}
+        mask:
+          points: 41
+          segments:
+            - {from: 410MHz, to: 450MHz, return_loss: 15, max_loss: 0.5 dB, points: 61}
+        network:
+          elements:
+            - line: {length: 90deg, z0: 50, vf: 0.66}
+            - shunt_stub: {length: {min: 0deg, max: 180deg}, end: either, z0: [35, 50, 75]}
+            - series_stub: {length: {min: 10mm, max: 300mm}, end: open, vf: 0.66}
+            - lumped: {connection: shunt, part: c, value: {min: 0.5pF, max: 10pF}}
+            - line: {length: 2.5ns, z0: {min: 20, max: 120}}
+        search: {trials: 10, time: 5min, seed: 1, target_margin: 3, objective: pareto}
+        """))
+    p = study.problem
+    assert p.name == "whip-uhf" and study.description == "free text"
+    assert p.grid.freq.size == 61  # segment points override the mask default
+    line, stub, sstub, cap, tline = p.network.elements
+    # Identity: 90° at 433 MHz is a quarter period, delay 1/(4·433e6) s.
+    assert line.length.fixed and line.length.lo == pytest.approx(1.0 / (4 * F_REF))
+    assert line.media[0].vf == 0.66 and line.length_basis == "delay"
+    assert stub.length.hi == pytest.approx(1.0 / (2 * F_REF))  # identity: 180° is 1/(2f)
+    assert [m.z0 for m in stub.media] == [35.0, 50.0, 75.0] and stub.end == "either"
+    assert sstub.length_basis == "physical" and (sstub.length.lo, sstub.length.hi) == pytest.approx((0.01, 0.3))
+    assert cap.value.log and cap.value.lo == pytest.approx(0.5e-12) and cap.value.hi == pytest.approx(10e-12)
+    assert tline.length.lo == pytest.approx(2.5e-9) and tline.z0_free.hi == 120.0
+    assert tline.media[0].z0 == pytest.approx(70.0)  # midpoint of 20..120 Ω
+    assert study.search.time_s == pytest.approx(300.0)  # 5 min in seconds
+    assert study.search.objective == "pareto" and study.search.target_margin_db == 3.0
+
+
+def test_quarter_wave_line_inverts_load(tmp_path):
+    zin = single_point_zin("""
+        reference: 433MHz
+        load: {impedance: 100}
+        mask: {segments: [{from: 433MHz, to: 433MHz, return_loss: 10}]}
+        network: {elements: [line: {length: 90deg, z0: 50}]}
+        """, tmp_path)
+    # Identity (Pozar, Microwave Engineering, 4th ed., sec. 2.5, recalled from memory):
+    # a λ/4 line inverts the load, Zin = Z0²/ZL = 2500/100 = 25 Ω.
+    assert zin == pytest.approx(25.0 + 0j, abs=1e-6)
+
+
+def test_physical_length_uses_velocity_factor(tmp_path):
+    vf, length_m = 0.66, 0.1
+    f_q = vf * C0 / (4 * length_m)  # frequency at which 100 mm of vf 0.66 line is λ/4
+    zin = single_point_zin(f"""
+        load: {{impedance: 100}}
+        mask: {{segments: [{{from: {f_q!r}, to: {f_q!r}, return_loss: 10}}]}}
+        network: {{elements: [line: {{length: 100mm, z0: 50, vf: 0.66}}]}}
+        """, tmp_path)
+    # Identity: λ/4 inversion Zin = Z0²/ZL = 25 Ω once the guided wavelength uses the velocity factor.
+    assert zin == pytest.approx(25.0 + 0j, abs=1e-6)
+
+
+def test_default_name_is_file_stem_and_example_configs_load():
+    for path in sorted(EXAMPLES.glob("*.yaml")):
+        assert check_study(path) == [], path
+    study = load_study(EXAMPLES / "rlc_single_stub.yaml")
+    # Identity: series R-L-C, Re Z = R at every frequency.
+    assert np.allclose(study.problem.zload.real, 25.0)
+
+
+def test_name_defaults_to_file_stem(tmp_path):
+    study = load_study(write(tmp_path, "load: {impedance: 50}\nnetwork: {template: single_shunt_stub}\n" + MASK,
+                             "my-study.v2.yaml"))
+    assert study.problem.name == "my-study.v2"
+    assert study.search.trials == 24 and study.search.time_s is None  # format defaults
+
+
+# ------------------------------------------------------------------ bad files
+
+GOOD_NET = "network: {template: single_shunt_stub}\n"
+GOOD_LOAD = "load: {impedance: 60-j80}\n"
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        (GOOD_LOAD + GOOD_NET + "mask: {segments: [{from: -3GHz, to: 450MHz, return_loss: 15}]}\n",
+         "mask.segments[0].from: must be positive"),
+        (GOOD_LOAD + GOOD_NET + "mask: {segments: [{from: 500MHz, to: 450MHz, return_loss: 15}]}\n",
+         "mask.segments[0]: from (500 MHz) must not exceed to (450 MHz)"),
+        (GOOD_LOAD + GOOD_NET + "mask: {segments: []}\n", "mask.segments: needs at least one entry"),
+        (GOOD_LOAD + GOOD_NET + MASK + "search: {trials: many}\n", "search.trials: expected a whole number"),
+        (GOOD_LOAD + GOOD_NET + MASK + "search: {time: soon}\n", "search.time: 'soon' is not a duration"),
+        (GOOD_LOAD + GOOD_NET + MASK + "colour: red\n", "colour: unknown key (allowed: name,"),
+        (GOOD_LOAD + GOOD_NET + MASK + "system: -50\n", "system: must be a positive number of ohms"),
+        (GOOD_LOAD + GOOD_NET + MASK + "name: 'a b'\n", "name: 'a b' may hold only"),
+        (GOOD_LOAD + MASK + "network: {template: quad_stub}\n", "network.template: unknown template 'quad_stub'"),
+        (GOOD_LOAD + MASK + "network: {template: double_stub, elements: [line: {length: 1deg}]}\n",
+         "network: give either template or elements, not both"),
+        (GOOD_LOAD + MASK + "network: {z0: 50}\n", "network: give a template or a list of elements"),
+        (GOOD_LOAD + MASK + "network: {template: stepped_line, spacing: 45deg}\n",
+         "network: spacing: not an option of template stepped_line"),
+        (GOOD_LOAD + MASK + "network: {elements: [line: {length: 1deg, vf: 1.5}]}\n",
+         "network.elements[0].line.vf: must lie in (0, 1]"),
+        (GOOD_LOAD + MASK + "network: {elements: [line: {length: 1deg, z0: -50}]}\n",
+         "network.elements[0].line.z0: must be a positive number of ohms"),
+        (GOOD_LOAD + MASK + "network: {elements: [line: {length: 1deg, z0: {min: 80, max: 20}}]}\n",
+         "network.elements[0].line.z0: min (80 Ω) must not exceed max (20 Ω)"),
+        (GOOD_LOAD + MASK + "network: {elements: [shunt_stub: {length: {min: 90deg, max: 10deg}}]}\n",
+         "network.elements[0].shunt_stub.length: min must not exceed max"),
+        (GOOD_LOAD + MASK + "network: {elements: [shunt_stub: {length: {min: 1ns, max: 90deg}}]}\n",
+         "network.elements[0].shunt_stub.length: min (1 ns) must not exceed max"),
+        (GOOD_LOAD + MASK + "network: {elements: [line: {length: {min: 1mm, max: 90deg}}]}\n",
+         "network.elements[0].line.length: min and max must both be"),
+        (GOOD_LOAD + MASK + "network: {elements: [line: {length: 30}]}\n",
+         "network.elements[0].line.length: 30 needs a unit"),
+        (GOOD_LOAD + MASK + "network: {elements: [series_stub: {length: 1deg, end: maybe}]}\n",
+         "network.elements[0].series_stub.end: 'maybe' is not allowed"),
+        (GOOD_LOAD + MASK + "network: {elements: [lumped: {connection: shunt, part: l, value: 5pF}]}\n",
+         "network.elements[0].lumped.value: a value in F does not suit part 'l'"),
+        (GOOD_LOAD + MASK + "network: {elements: [wire: {length: 1deg}]}\n",
+         "network.elements[0].wire: unknown key (allowed: line, shunt_stub, series_stub, lumped)"),
+        (GOOD_LOAD + MASK + "network: {elements: [{line: {length: 1deg}, shunt_stub: {length: 1deg}}]}\n",
+         "network.elements[0]: give one element kind per entry"),
+        (GOOD_NET + MASK + "load: {}\n", "load: give one of impedance, series_rlc, parallel_rlc, touchstone"),
+        (GOOD_NET + MASK + "load: {impedance: 50, series_rlc: {r: 20}}\n", "load: give exactly one of"),
+        (GOOD_NET + MASK + "load: {impedance: 50x}\n", "load.impedance: '50x' is not a complex number"),
+        (GOOD_NET + MASK + "load: {series_rlc: {}}\n", "load.series_rlc: give at least one of r, l, c"),
+        (GOOD_NET + MASK + "load: {series_rlc: {l: 15pF}}\n", "load.series_rlc.l: '15pF': inductance is given in H"),
+        (GOOD_NET + MASK + "load: {touchstone: nothere.s1p}\n", "load.touchstone: "),
+        (GOOD_NET + MASK, "load: required key is missing"),
+    ],
+)
+def test_bad_file_names_key_path(tmp_path, text, expected):
+    path = write(tmp_path, text)
+    probs = problems_of(path)
+    assert any(line.startswith(f"{path}: {expected}") for line in probs), probs
+
+
+def test_touchstone_missing_malformed_and_out_of_range(tmp_path):
+    missing = problems_of(write(tmp_path, GOOD_NET + MASK + "load: {touchstone: gone.s1p}\n"))
+    assert missing[0].endswith("gone.s1p: file not found")
+
+    (tmp_path / "junk.s1p").write_text("# Hz S RI R 50\n400e6 0.1\nnot numbers at all\n")
+    junk = problems_of(write(tmp_path, GOOD_NET + MASK + "load: {touchstone: junk.s1p}\n"))
+    assert "load.touchstone:" in junk[0] and "junk.s1p" in junk[0]
+
+    shutil.copy(WHIP, tmp_path / "whip.s1p")
+    wide = "mask: {segments: [{from: 300MHz, to: 500MHz, return_loss: 15}]}\n"
+    out = problems_of(write(tmp_path, GOOD_NET + wide + "load: {touchstone: whip.s1p}\n"))
+    # The invented file spans 400-460 MHz; a 300-500 MHz grid must not be extrapolated.
+    assert "load.touchstone:" in out[0] and "outside the measured range" in out[0]
+
+
+def test_file_level_problems(tmp_path):
+    assert problems_of(tmp_path / "absent.yaml") == [f"{tmp_path / 'absent.yaml'}: file not found"]
+    assert problems_of(write(tmp_path, "\n# nothing\n", "empty.yaml"))[0].endswith(": file is empty")
+    assert "at the top level" in problems_of(write(tmp_path, "- 1\n- 2\n", "list.yaml"))[0]
+    syntax = problems_of(write(tmp_path, "load: {impedance: 50}\nmask: [unclosed\nnetwork: x\n", "syn.yaml"))
+    assert len(syntax) == 1 and "line 3" in syntax[0] and "YAML syntax error" in syntax[0]
+    dup = problems_of(write(tmp_path, GOOD_LOAD + GOOD_NET + MASK + "load: {impedance: 75}\n", "dup.yaml"))
+    assert "key 'load' is given twice" in dup[0] and "line " in dup[0]
+
+
+def test_all_problems_reported_together(tmp_path):
+    path = write(tmp_path, """
+        name: "bad name!"
+        system: -50
+        load: {touchstone: gone.s1p}
+        mask:
+          points: 1
+          segments:
+            - {from: -3GHz, to: 450MHz, return_loss: 15, colour: red}
+        network:
+          elements:
+            - line: {length: 90deg, vf: 1.5}
+            - shunt_stub: {length: {min: 2ns, max: 10deg}, end: maybe}
+        search: {trials: 0, objective: best}
+        """)
+    probs = problems_of(path)
+    expected = [
+        "name:", "system:", "mask.points:", "mask.segments[0].from:", "mask.segments[0].colour:",
+        "network.elements[0].line.vf:", "network.elements[1].shunt_stub.end:", "search.trials:",
+        "search.objective:",
+        "load.touchstone:",  # resolution stage, still reported alongside the schema problems
+    ]
+    for key in expected:
+        assert any(line.startswith(f"{path}: {key}") for line in probs), (key, probs)
+    assert len(probs) == len(expected)
