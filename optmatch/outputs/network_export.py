@@ -1,0 +1,120 @@
+"""S-parameters of a design's matching network and of the matched input, and their Touchstone export.
+
+Port 1 of the 2-port faces the source (the input), port 2 faces the load; both ports are referenced
+to the problem's system impedance.  Units: Hz, Ω.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import numpy as np
+
+from optmatch.domain.design import Design
+from optmatch.domain.problem import Problem
+from optmatch.io.touchstone import write_touchstone
+
+NETWORK_FILE = "best_network.s2p"
+INPUT_FILE = "matched_input.s1p"
+
+
+def _scalar(value: object) -> float:
+    """One design's value of an engine parameter (scalar or shape (1,))."""
+    return float(np.ravel(np.asarray(value, dtype=float))[0])
+
+
+def _element_matrix(stage, p: dict, freq: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Homogeneous ABCD matrix ``k·T`` of one element (F, 2, 2) and its scale ``k`` (F,).
+
+    Branches are kept as a pair Z = P / Q so that open and short circuits stay finite.
+    """
+    omega = 2.0 * np.pi * freq
+    n = freq.size
+    m = np.zeros((n, 2, 2), dtype=complex)
+    if stage.kind in ("line", "stub"):
+        z0 = _scalar(p["z0"])
+        alpha = _scalar(p.get("loss_c", 0.0)) * np.sqrt(freq) + _scalar(p.get("loss_d", 0.0)) * freq  # Np
+        gl = alpha + 1j * omega * _scalar(p["delay"])
+        ch, sh = np.cosh(gl), np.sinh(gl)
+        if stage.kind == "line":
+            m[:, 0, 0], m[:, 0, 1], m[:, 1, 0], m[:, 1, 1] = ch, z0 * sh, sh / z0, ch
+            return m, np.ones(n, dtype=complex)
+        short = bool(np.ravel(np.asarray(p.get("short", False)))[0])
+        bp, bq = (z0 * sh, ch) if short else (ch, sh / z0)
+    else:
+        value = _scalar(p["value"])
+        one = np.ones(n, dtype=complex)
+        if stage.part == "r":
+            bp, bq = value * one, one
+        elif stage.part == "l":
+            bp, bq = 1j * omega * value, one
+        else:
+            bp, bq = one, 1j * omega * value
+    if stage.connection == "series":  # [[1, Z], [0, 1]] · Q
+        m[:, 0, 0], m[:, 0, 1], m[:, 1, 1] = bq, bp, bq
+        return m, bq
+    m[:, 0, 0], m[:, 1, 0], m[:, 1, 1] = bp, bq, bp  # [[1, 0], [1/Z, 1]] · P
+    return m, bp
+
+
+def network_sparams(problem: Problem, design: Design) -> np.ndarray:
+    """S-parameters (F, 2, 2) of the matching network alone on the problem's grid.
+
+    Built as the ABCD cascade of the elements (input side first) and converted to S against
+    the system impedance on both ports.  Every element is reciprocal, so S12 = S21.
+    """
+    net = problem.network
+    params = net.engine_params(design.vector(), design.choice)
+    freq = problem.grid.freq
+    z = problem.z_sys
+    total = np.broadcast_to(np.eye(2, dtype=complex), (freq.size, 2, 2)).copy()
+    k = np.ones(freq.size, dtype=complex)
+    # elements are listed from the load outwards; the input-side matrix multiplies on the left
+    for stage, p in zip(reversed(net.stages), reversed(params), strict=True):
+        m, km = _element_matrix(stage, p, freq)
+        total = total @ m
+        k = k * km
+        scale = np.max(np.abs(total), axis=(1, 2))
+        scale[scale == 0.0] = 1.0
+        total = total / scale[:, None, None]
+        k = k / scale
+    a, b, c, d = total[:, 0, 0], total[:, 0, 1], total[:, 1, 0], total[:, 1, 1]
+    den = a + b / z + c * z + d
+    s = np.empty((freq.size, 2, 2), dtype=complex)
+    s[:, 0, 0] = (a + b / z - c * z - d) / den
+    s[:, 1, 1] = (-a + b / z - c * z + d) / den
+    s[:, 1, 0] = 2.0 * k / den
+    s[:, 0, 1] = s[:, 1, 0]
+    return s
+
+
+def matched_input(problem: Problem, design: Design) -> np.ndarray:
+    """Input reflection Γ (F,) of the network terminated in the problem's load, against the system impedance."""
+    return problem.response(design.vector(), design.choice).gamma[0]
+
+
+def export_touchstone(problem: Problem, design: Design, folder: str | os.PathLike, rank: int = 1) -> tuple[Path, Path]:
+    """Write ``best_network.s2p`` (the network alone) and ``matched_input.s1p`` into ``folder``.
+
+    Returns the two paths.  Both files are written atomically.
+    """
+    out = Path(folder)
+    out.mkdir(parents=True, exist_ok=True)
+    z = problem.z_sys
+    common = [
+        f"optmatch study: {problem.name}",
+        f"design rank {rank}: margin {design.margin_db:+.2f} dB against the mask",
+        f"reference impedance {z:g} ohm",
+    ]
+    network_lines = [
+        *common[:2],
+        "matching network alone, 2-port",
+        "port 1 faces the source (input), port 2 faces the load",
+        f"both ports referenced to {z:g} ohm",
+    ]
+    input_lines = [*common, "input reflection of the matching network terminated in the study's load"]
+    freq = problem.grid.freq
+    s2p = write_touchstone(out / NETWORK_FILE, freq, network_sparams(problem, design), z, network_lines)
+    s1p = write_touchstone(out / INPUT_FILE, freq, matched_input(problem, design), z, input_lines)
+    return s2p, s1p
