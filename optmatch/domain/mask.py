@@ -39,6 +39,7 @@ class Grid:
     max_loss_db: np.ndarray  # +inf where unlimited
     rl_weight: np.ndarray
     loss_weight: np.ndarray
+    segments: tuple[Segment, ...] = ()
 
     @property
     def has_loss_limit(self) -> bool:
@@ -51,25 +52,27 @@ class Grid:
 
 
 def build_grid(segments: list[Segment]) -> Grid:
-    """Concatenate uniform grids of every segment; where segments overlap the stricter value holds."""
+    """Concatenate uniform grids of every segment; at each point the strictest covering segment holds."""
     if not segments:
         raise ValueError("a mask needs at least one segment")
-    pts: dict[float, tuple[float, float]] = {}
+    points: set[float] = set()
     for seg in segments:
         if not (0 < seg.f_lo <= seg.f_hi):
             raise ValueError(f"segment {seg.f_lo}..{seg.f_hi} Hz: frequencies must be positive and ascending")
         n = 1 if seg.f_lo == seg.f_hi else max(int(seg.points), 2)
-        limit = np.inf if seg.max_loss_db is None else seg.max_loss_db
-        for f in np.linspace(seg.f_lo, seg.f_hi, n):
-            key = float(f)
-            old = pts.get(key)
-            pts[key] = (seg.min_rl_db, limit) if old is None else (max(old[0], seg.min_rl_db), min(old[1], limit))
-    freq = np.array(sorted(pts))
-    req = np.array([pts[f][0] for f in freq])
-    lim = np.array([pts[f][1] for f in freq])
-    with np.errstate(over="ignore"):
-        loss_w = np.where(np.isfinite(lim), 10.0 ** (-np.where(np.isfinite(lim), lim, 0.0) / 10.0), 0.0)
-    return Grid(freq=freq, min_rl_db=req, max_loss_db=lim, rl_weight=10.0 ** (req / 10.0), loss_weight=loss_w)
+        points.update(float(f) for f in np.linspace(seg.f_lo, seg.f_hi, n))
+    freq = np.array(sorted(points))
+    req = np.full(freq.size, -np.inf)
+    lim = np.full(freq.size, np.inf)
+    for seg in segments:
+        inside = (freq >= seg.f_lo) & (freq <= seg.f_hi)
+        req[inside] = np.maximum(req[inside], seg.min_rl_db)
+        if seg.max_loss_db is not None:
+            lim[inside] = np.minimum(lim[inside], seg.max_loss_db)
+    finite = np.isfinite(lim)
+    loss_w = np.where(finite, 10.0 ** (-np.where(finite, lim, 0.0) / 10.0), 0.0)
+    return Grid(freq=freq, min_rl_db=req, max_loss_db=lim, rl_weight=10.0 ** (req / 10.0), loss_weight=loss_w,
+                segments=tuple(segments))
 
 
 def margin_terms(gamma_sq: np.ndarray, delivered: np.ndarray | None, grid: Grid) -> np.ndarray:

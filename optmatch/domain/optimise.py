@@ -116,6 +116,57 @@ def polish(
     return u, evals
 
 
+def minimax_polish(
+    shortfall: Callable[[np.ndarray], np.ndarray],
+    u0: np.ndarray,
+    step: float = 1e-7,
+    max_iter: int = 40,
+) -> tuple[np.ndarray, int]:
+    """Exact minimax refinement: minimise t subject to shortfall_k(u) ≤ t at every grid point k.
+
+    ``shortfall(u (n, d)) -> (n, F)`` in dB (the score is ``-max_k``).  SLSQP over (u, t) with the
+    constraint Jacobian by forward differences, one batch of d + 1 points per iteration.
+    Returns the better of the start and the result, and the evaluations used.
+    """
+    d = u0.size
+    evals = 0
+    eye = np.eye(d) * step
+    cache: dict[bytes, tuple[np.ndarray, np.ndarray]] = {}
+
+    def values(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        nonlocal evals
+        key = x.tobytes()
+        if key not in cache:
+            pts = np.vstack([x, np.clip(x + eye, 0.0, 1.0)])
+            vals = shortfall(pts)
+            evals += d + 1
+            h = np.diag(pts[1:] - x)
+            h = np.where(np.abs(h) > 0, h, step)
+            cache.clear()
+            cache[key] = (vals[0], ((vals[1:] - vals[0]) / h[:, None]).T)
+        return cache[key]
+
+    def cons(z: np.ndarray) -> np.ndarray:
+        return z[-1] - values(z[:-1])[0]
+
+    def cons_jac(z: np.ndarray) -> np.ndarray:
+        jac = values(z[:-1])[1]
+        return np.hstack([-jac, np.ones((jac.shape[0], 1))])
+
+    start = np.asarray(u0, dtype=float)
+    t0 = float(np.max(shortfall(start[None, :])[0]))
+    evals += 1
+    z0 = np.append(start, t0)
+    res = minimize(lambda z: z[-1], z0, jac=lambda z: np.eye(d + 1)[-1], method="SLSQP",
+                   bounds=[(0.0, 1.0)] * d + [(None, None)],
+                   constraints=[{"type": "ineq", "fun": cons, "jac": cons_jac}],
+                   options={"maxiter": max_iter, "ftol": 1e-10})
+    x = np.clip(res.x[:-1], 0.0, 1.0)
+    t = float(np.max(shortfall(x[None, :])[0]))
+    evals += 1
+    return (x, evals) if t < t0 else (start, evals)
+
+
 def inner_search(
     score: Objective,
     smooth: Callable[[np.ndarray, float], np.ndarray],
@@ -125,8 +176,13 @@ def inner_search(
     population: int = 64,
     generations: int = 60,
     polish_top: int = 3,
+    shortfall: Callable[[np.ndarray], np.ndarray] | None = None,
 ) -> InnerResult:
-    """Population search, then polish the best ``polish_top`` distinct points; best first."""
+    """Population search, then polish the best ``polish_top`` distinct points; best first.
+
+    With ``shortfall`` (per-point dB shortfall, see :func:`minimax_polish`) the smooth polish is
+    followed by an exact minimax refinement.
+    """
     if dim == 0:
         u = np.zeros((1, 0))
         return InnerResult(u=u, score=score(u), evaluations=1)
@@ -138,10 +194,18 @@ def inner_search(
             picked.append(cand)
         if len(picked) >= polish_top:
             break
+    if seeds is not None and len(seeds):
+        # a seed's basin may be narrow-band: also polish the best point far from every seed
+        far = [c for c in res.u if np.min(np.max(np.abs(seeds - c), axis=1)) > 0.15]
+        if far and all(np.max(np.abs(far[0] - p)) > 1e-3 for p in picked):
+            picked.append(far[0])
     polished = []
     for cand in picked:
         x, used = polish(smooth, cand)
         evals += used
+        if shortfall is not None:
+            x, used = minimax_polish(shortfall, x)
+            evals += used
         polished.append(x)
     allu = np.vstack([np.array(polished), res.u])
     allscore = np.concatenate([score(np.array(polished)), res.score])

@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from optmatch.domain.mask import Grid, margin_db, smooth_margin_db
+from optmatch.domain.mask import Grid, margin_db, margin_terms, smooth_margin_db
 from optmatch.domain.network import Choice, NetworkSpec
 from optmatch.engine import Response, evaluate, evaluate_reduced
 
@@ -47,6 +47,19 @@ class Problem:
             if beta is None:
                 return margin_db(r.gamma_sq, delivered, self.grid)
             return smooth_margin_db(r.gamma_sq, delivered, self.grid, beta)
+
+        return evaluate_reduced(self.network.stages, params, self.grid.freq, self.zload, self.z_sys, reducer=red)
+
+    def shortfalls_db(self, u: np.ndarray, choice: Choice) -> np.ndarray:
+        """Per grid point, requirement minus achievement in dB (n, F); margin = −max over F."""
+        u = np.atleast_2d(u)
+        params = self.network.engine_params(u, choice)
+        need_power = self.grid.has_loss_limit
+
+        def red(r: Response) -> np.ndarray:
+            terms = margin_terms(r.gamma_sq, r.delivered if need_power else None, self.grid)
+            with np.errstate(divide="ignore"):
+                return 10.0 * np.log10(np.maximum(terms, 1e-300))
 
         return evaluate_reduced(self.network.stages, params, self.grid.freq, self.zload, self.z_sys, reducer=red)
 

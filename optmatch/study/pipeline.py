@@ -1,0 +1,21 @@
+"""One study from file to results folder: storage, search, checks, outputs."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from optmatch.study.loader import Study
+from optmatch.study.results import results_dir, summary_document, write_results
+from optmatch.study.search import ProgressFn, run_search
+from optmatch.study.storage import open_storage
+
+
+def run_study(study: Study, out_root: Path, storage_url: str | None = None,
+              progress_fn: ProgressFn | None = None) -> tuple[Path, dict]:
+    """Run or resume ``study``; write ``<out_root>/<name>/``; return the folder and summary."""
+    folder = results_dir(study, out_root)
+    storage = open_storage(storage_url, folder)
+    outcome = run_search(study, storage, progress=progress_fn)
+    warnings: list[str] = []
+    folder = write_results(study, outcome, out_root, warnings)
+    return folder, summary_document(study, outcome, warnings)

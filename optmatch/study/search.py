@@ -1,0 +1,244 @@
+"""The search pipeline: closed-form seeds, optuna's outer loop over discrete choices and restarts,
+and the vectorised inner search in each trial.
+
+optuna knows only the discrete dimensions (stub ends, medium choices) and which start a trial
+takes (a closed-form seed or a random population); each trial runs thousands of network
+evaluations at once through the engine, and keeps its best few designs in the trial's user
+attributes, so the storage holds every result and a study can be resumed or shared by workers.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+import optuna
+from optuna.storages import BaseStorage
+
+from optmatch.domain.design import Design
+from optmatch.domain.network import Choice
+from optmatch.domain.optimise import inner_search
+from optmatch.domain.problem import Problem
+from optmatch.domain.seeds import Seed, closed_form_seeds
+from optmatch.study.loader import SearchSettings, Study
+
+optuna.logging.set_verbosity(optuna.logging.WARNING)
+
+LENGTH_TIE_BREAK_DB_PER_WL = 1e-3  # a tenth of a wavelength costs 0.0001 dB: ties only
+PARETO_WEIGHT_MAX_DB_PER_WL = 20.0
+KEEP_PER_TRIAL = 3
+
+ProgressFn = Callable[[int, int, float | None], None]
+
+
+@dataclass(frozen=True)
+class SearchOutcome:
+    """Ranked designs and how the search went."""
+
+    designs: list[Design]
+    pareto: list[Design]
+    all_points: list[tuple[float, float]]
+    trials_complete: int
+    evaluations: int
+    elapsed_s: float
+    seeds: list[Seed]
+    stopped_early: bool
+
+
+BUDGET_KEYS = ("trials", "time", "keep", "target_margin")
+
+
+def optuna_study_name(study: Study) -> str:
+    """Storage name of a study: its name plus a digest of what defines its trials.
+
+    A changed load, mask, network or search method starts afresh; a changed budget (trials, time,
+    designs kept, target) continues the same trials.
+    """
+    raw = dict(study.raw)
+    raw["search"] = {k: v for k, v in dict(raw.get("search") or {}).items() if k not in BUDGET_KEYS}
+    h = hashlib.sha256(json.dumps(raw, sort_keys=True, default=str).encode())
+    h.update(np.ascontiguousarray(study.problem.zload).tobytes())
+    return f"{study.problem.name}-{h.hexdigest()[:12]}"
+
+
+def _choice_doc(choice: Choice) -> dict:
+    return {"medium": list(choice.medium), "short": list(choice.short)}
+
+
+def _choice_from_doc(doc: dict) -> Choice:
+    return Choice(tuple(int(m) for m in doc["medium"]), tuple(bool(s) for s in doc["short"]))
+
+
+def _starts(seeds: list[Seed]) -> list[str]:
+    return ["random"] + [f"seed-{k}" for k in range(len(seeds))]
+
+
+def _seed_picks(problem: Problem, seed: Seed) -> dict:
+    picks: dict = {}
+    for name, i, _ in problem.network.choice_space():
+        if name.endswith(".medium"):
+            picks[name] = seed.choice.medium[i]
+        else:
+            picks[name] = "short" if seed.choice.short[i] else "open"
+    return picks
+
+
+def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed], use_seeds: bool = True):
+    """The optuna objective for one study: discrete picks and start → inner search → margin."""
+    space = problem.network.choice_space()
+    starts = _starts(seeds) if use_seeds else ["random"]
+    pareto = settings.objective == "pareto"
+
+    def objective(trial: optuna.Trial):
+        picks = {name: trial.suggest_categorical(name, options) for name, _, options in space}
+        start = trial.suggest_categorical("start", starts)
+        weight = trial.suggest_float("length_weight", 0.0, PARETO_WEIGHT_MAX_DB_PER_WL) if pareto else None
+        choice = problem.network.choice_from(picks)
+        rng = np.random.default_rng([settings.seed, trial.number])
+        init = None
+        if start != "random":
+            first = seeds[int(start.split("-")[1])]
+            same = [s.u for s in seeds if s.choice == choice and s is not first]
+            init = np.vstack([first.u, *same]) if problem.network.dim else None
+        penalty = weight if weight is not None else LENGTH_TIE_BREAK_DB_PER_WL
+
+        def score(u: np.ndarray) -> np.ndarray:
+            return problem.margins(u, choice) - penalty * problem.length_wl(u, choice)
+
+        def smooth(u: np.ndarray, beta: float) -> np.ndarray:
+            return problem.margins(u, choice, beta=beta) - penalty * problem.length_wl(u, choice)
+
+        def shortfall(u: np.ndarray) -> np.ndarray:
+            return problem.shortfalls_db(u, choice) + (penalty * problem.length_wl(u, choice))[:, None]
+
+        res = inner_search(score, smooth, problem.network.dim, rng, seeds=init,
+                           population=settings.population, generations=settings.generations,
+                           shortfall=shortfall)
+        kept: list[dict] = []
+        for u in res.u:
+            if len(kept) >= KEEP_PER_TRIAL:
+                break
+            if all(np.max(np.abs(u - np.array(k["u"])), initial=0.0) > 1e-4 for k in kept) or not kept:
+                m = float(problem.margins(u, choice)[0])
+                length = float(problem.length_wl(u, choice)[0])
+                kept.append({"u": [float(x) for x in u], "margin_db": m, "length_wl": length})
+        trial.set_user_attr("choice", _choice_doc(choice))
+        trial.set_user_attr("designs", kept)
+        trial.set_user_attr("evaluations", int(res.evaluations))
+        best = max(kept, key=lambda d: d["margin_db"] - penalty * d["length_wl"])
+        if pareto:
+            return best["margin_db"], best["length_wl"]
+        return best["margin_db"]
+
+    return objective
+
+
+def open_study(study: Study, storage: BaseStorage | str) -> optuna.Study:
+    """Create or load the optuna study for ``study`` in ``storage``."""
+    settings = study.search
+    sampler = (optuna.samplers.NSGAIISampler(seed=settings.seed) if settings.objective == "pareto"
+               else optuna.samplers.TPESampler(seed=settings.seed))
+    kwargs: dict = {"directions": ["maximize", "minimize"]} if settings.objective == "pareto" else {
+        "direction": "maximize"}
+    return optuna.create_study(storage=storage, study_name=optuna_study_name(study), sampler=sampler,
+                               load_if_exists=True, **kwargs)
+
+
+def _complete(ost: optuna.Study) -> list[optuna.trial.FrozenTrial]:
+    return [t for t in ost.get_trials(deepcopy=False) if t.state == optuna.trial.TrialState.COMPLETE]
+
+
+def enqueue_seeds(ost: optuna.Study, problem: Problem, seeds: list[Seed]) -> None:
+    """Queue one trial per distinct seed start, only when the study is new."""
+    if ost.get_trials(deepcopy=False):
+        return
+    for k, seed in enumerate(seeds):
+        params = {**_seed_picks(problem, seed), "start": f"seed-{k}"}
+        ost.enqueue_trial(params, skip_if_exists=True)
+
+
+def collect_designs(ost: optuna.Study) -> tuple[list[Design], list[tuple[float, float]]]:
+    """Every design kept by every complete trial, ranked: best margin first, shorter on ties."""
+    designs: list[Design] = []
+    seen: set[tuple] = set()
+    for t in _complete(ost):
+        choice = _choice_from_doc(t.user_attrs["choice"])
+        for d in t.user_attrs.get("designs", []):
+            key = (choice, tuple(round(x, 6) for x in d["u"]))
+            if key in seen:
+                continue
+            seen.add(key)
+            designs.append(Design(choice, tuple(d["u"]), d["margin_db"], d["length_wl"], t.number))
+    designs.sort(key=lambda d: (-round(d.margin_db, 2), d.length_wl, d.trial))
+    return designs, [(d.margin_db, d.length_wl) for d in designs]
+
+
+def pareto_front(designs: list[Design]) -> list[Design]:
+    """Designs not beaten on both margin (higher) and total length (shorter), by length."""
+    front: list[Design] = []
+    for d in sorted(designs, key=lambda d: (d.length_wl, -d.margin_db)):
+        if not front or d.margin_db > front[-1].margin_db + 1e-9:
+            front.append(d)
+    return front
+
+
+def study_seeds(problem: Problem) -> list[Seed]:
+    """Closed-form seeds for the load at the grid point nearest the reference frequency."""
+    zload = complex(problem.zload[np.argmin(np.abs(problem.grid.freq - problem.f_ref))])
+    return closed_form_seeds(problem.network, zload, problem.z_sys, problem.f_ref)
+
+
+def run_search(
+    study: Study,
+    storage: BaseStorage | str,
+    progress: ProgressFn | None = None,
+    use_seeds: bool = True,
+) -> SearchOutcome:
+    """Run (or resume) the study's search until its trial budget, time budget or target is reached."""
+    problem, settings = study.problem, study.search
+    start_time = time.monotonic()
+    seeds = study_seeds(problem) if use_seeds else []
+    ost = open_study(study, storage)
+    if use_seeds:
+        enqueue_seeds(ost, problem, seeds)
+    objective = make_objective(problem, settings, seeds, use_seeds)
+    stopped = {"early": False}
+
+    def best_margin() -> float | None:
+        done = _complete(ost)
+        return max((t.values[0] for t in done), default=None)
+
+    def callback(st: optuna.Study, trial: optuna.trial.FrozenTrial) -> None:
+        n_done = len(_complete(st))
+        best = best_margin()
+        if progress is not None:
+            progress(n_done, settings.trials, best)
+        if n_done >= settings.trials:
+            st.stop()
+        if settings.target_margin_db is not None and best is not None and best >= settings.target_margin_db:
+            stopped["early"] = True
+            st.stop()
+
+    remaining = settings.trials - len(_complete(ost))
+    if progress is not None:
+        progress(len(_complete(ost)), settings.trials, best_margin())
+    if remaining > 0:
+        ost.optimize(objective, n_trials=remaining, timeout=settings.time_s, callbacks=[callback],
+                     catch=())
+    designs, points = collect_designs(ost)
+    complete = _complete(ost)
+    evaluations = sum(int(t.user_attrs.get("evaluations", 0)) for t in complete)
+    return SearchOutcome(
+        designs=designs[: settings.keep],
+        pareto=pareto_front(designs) if settings.objective == "pareto" else [],
+        all_points=points,
+        trials_complete=len(complete),
+        evaluations=evaluations,
+        elapsed_s=time.monotonic() - start_time,
+        seeds=seeds,
+        stopped_early=stopped["early"],
+    )
