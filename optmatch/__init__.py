@@ -1,3 +1,35 @@
-"""optmatch: broadband transmission-line stub matching against a return-loss mask."""
+"""optmatch: broadband transmission-line stub matching against a return-loss mask.
+
+The user-facing API: load a study file, run it, write its results; the closed-form solutions;
+and the batched engine for custom studies.  Names are imported on first use, so that
+``import optmatch`` (and the quick ``optmatch spot``) does not pull in optuna or matplotlib.
+"""
+
+from __future__ import annotations
+
+import importlib
 
 __version__ = "0.1.0"
+
+_EXPORTS = {
+    "Stage": "optmatch.engine",
+    "evaluate": "optmatch.engine",
+    "all_solutions": "optmatch.domain.closed_form",
+    "double_stub": "optmatch.domain.closed_form",
+    "quarter_wave": "optmatch.domain.closed_form",
+    "series_stub": "optmatch.domain.closed_form",
+    "shunt_stub": "optmatch.domain.closed_form",
+    "Study": "optmatch.study.loader",
+    "StudyFileError": "optmatch.study.loader",
+    "check_study": "optmatch.study.loader",
+    "load_study": "optmatch.study.loader",
+    "run_study": "optmatch.study.pipeline",
+}
+
+__all__ = sorted(_EXPORTS)
+
+
+def __getattr__(name: str):
+    if name in _EXPORTS:
+        return getattr(importlib.import_module(_EXPORTS[name]), name)
+    raise AttributeError(f"module 'optmatch' has no attribute {name!r}")

@@ -46,8 +46,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         print("optmatch: interrupted; finished trials are kept and a rerun resumes", file=sys.stderr)
         return EXIT_INTERRUPTED
     except (OptmatchError, ValueError, OSError) as exc:
-        message = " ".join(str(exc).split()) or type(exc).__name__
-        print(f"optmatch: error: {message}", file=sys.stderr)
+        lines = getattr(exc, "problems", None) or [str(exc)]
+        for line in lines:  # one line per problem, never a traceback
+            print(f"optmatch: error: {' '.join(str(line).split()) or type(exc).__name__}", file=sys.stderr)
         return EXIT_BAD_INPUT
 
 
