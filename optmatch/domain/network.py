@@ -7,6 +7,8 @@ A network lists its elements from the load outwards.
 
 from __future__ import annotations
 
+import itertools
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from typing import Literal
@@ -72,6 +74,9 @@ class ElementSpec:
     media it may be made of (one = fixed; several = a discrete choice), ``z0_free``: a free Z0
     bound replacing the media's Z0 (printed lines), ``end`` for stubs, ``extra_delay``: fixed
     delay (s) added by connectors or adapters at this element (lossless).
+    Shelf: ``piece_m`` gives, per medium option, the length (m) of a stock piece of that cable, or
+    None where the option is cut to length (then the ``length`` bound applies); empty = all cut.
+    ``cut_step_m``: cut lengths are whole multiples of this step (m; basis ``physical``).
     Lumped parts: ``connection``, ``part`` and ``value`` bound (Ω, H or F).
     """
 
@@ -82,6 +87,8 @@ class ElementSpec:
     z0_free: Bound | None = None
     end: End | None = None
     extra_delay: float = 0.0
+    piece_m: tuple[float | None, ...] = ()
+    cut_step_m: float | None = None
     connection: Literal["series", "shunt"] = "series"
     part: Literal["r", "l", "c"] | None = None
     value: Bound | None = None
@@ -90,6 +97,10 @@ class ElementSpec:
     @property
     def is_line_like(self) -> bool:
         return self.kind != "lumped"
+
+    def piece(self, option: int) -> float | None:
+        """Length (m) of the stock piece that medium option ``option`` stands for, or None (cut)."""
+        return self.piece_m[option] if option < len(self.piece_m) else None
 
     def stage(self) -> Stage:
         if self.kind == "line":
@@ -123,6 +134,7 @@ class NetworkSpec:
     """An ordered network (load outwards) and the search space it implies."""
 
     elements: tuple[ElementSpec, ...]
+    stock: tuple[tuple[str, float, int], ...] = ()  # (cable name, piece length m, pieces on the shelf)
     free: tuple[FreeParam, ...] = field(init=False)
 
     def __post_init__(self) -> None:
@@ -201,9 +213,59 @@ class NetworkSpec:
                 res.append(None)
                 continue
             med = el.media[choice.medium[i]]
+            piece = el.piece(choice.medium[i])
             length = values[i]["length"]
+            if piece is not None:
+                res.append(np.full(np.shape(length), piece / (med.vf * C0)))
+                continue
             res.append(length if el.length_basis == "delay" else length / (med.vf * C0))
         return res
+
+    def pieces_used(self, choice: Choice) -> dict[tuple[str, float], int]:
+        """Stock pieces a choice takes from the shelf: {(cable name, length m): count}."""
+        used: dict[tuple[str, float], int] = {}
+        for i, el in enumerate(self.elements):
+            if not el.is_line_like:
+                continue
+            piece = el.piece(choice.medium[i])
+            if piece is not None:
+                key = (el.media[choice.medium[i]].name, round(piece, 9))
+                used[key] = used.get(key, 0) + 1
+        return used
+
+    def stock_shortage(self, choice: Choice) -> int:
+        """Pieces a choice takes beyond what the shelf holds (0 = buildable from the shelf)."""
+        have = {(name, round(length, 9)): count for name, length, count in self.stock}
+        return sum(max(0, n - have.get(key, 0)) for key, n in self.pieces_used(choice).items())
+
+    def snap_candidates(self, u: np.ndarray) -> np.ndarray:
+        """Every way to round the cut lengths of ``u`` (dim,) down or up to their cut steps, (m, dim).
+
+        Cut lengths stay inside their bounds; a network without cut steps gives ``u`` itself.
+        """
+        u = np.asarray(u, dtype=float).reshape(-1)
+        options: list[list[float]] = []
+        cols: list[int] = []
+        for col, fp in enumerate(self.free):
+            el = self.elements[fp.element]
+            step = el.cut_step_m
+            if fp.quantity != "length" or step is None or el.length_basis != "physical":
+                continue
+            b = fp.bound
+            x = float(b.from_unit(np.array(u[col])))
+            lo_n, hi_n = math.ceil(b.lo / step - 1e-9), math.floor(b.hi / step + 1e-9)
+            if lo_n > hi_n:
+                continue
+            k = min(max(math.floor(x / step + 1e-9), lo_n), hi_n)
+            near = sorted({k, min(k + 1, hi_n)})
+            options.append([b.to_unit(n * step) for n in near])
+            cols.append(col)
+        if not cols:
+            return u.reshape(1, -1)
+        grid = np.array(list(itertools.product(*options)), dtype=float)
+        out = np.repeat(u.reshape(1, -1), grid.shape[0], axis=0)
+        out[:, cols] = grid
+        return out
 
     def engine_params(self, u: np.ndarray, choice: Choice) -> list[dict]:
         """Engine parameter dicts for unit vectors ``u`` (n, dim) under discrete ``choice``."""
@@ -241,7 +303,7 @@ class NetworkSpec:
 
 def with_elements(spec: NetworkSpec, elements: Sequence[ElementSpec]) -> NetworkSpec:
     """A copy of ``spec`` with other elements (recomputes the free parameters)."""
-    return NetworkSpec(tuple(elements))
+    return NetworkSpec(tuple(elements), spec.stock)
 
 
 def fix_element(el: ElementSpec, **changes) -> ElementSpec:

@@ -31,6 +31,8 @@ optuna.logging.set_verbosity(optuna.logging.WARNING)
 LENGTH_TIE_BREAK_DB_PER_WL = 1e-3  # a tenth of a wavelength costs 0.0001 dB: ties only
 PARETO_WEIGHT_MAX_DB_PER_WL = 20.0
 KEEP_PER_TRIAL = 3
+DISTINCT_U = 0.01  # designs closer than this (unit-cube max norm) are one design
+STOCK_SHORTAGE_DB = 100.0  # penalty per stock piece a trial's choice takes beyond the shelf
 
 ProgressFn = Callable[[int, int, float | None], None]
 
@@ -98,6 +100,14 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
         start = trial.suggest_categorical("start", starts)
         weight = trial.suggest_float("length_weight", 0.0, PARETO_WEIGHT_MAX_DB_PER_WL) if pareto else None
         choice = problem.network.choice_from(picks)
+        shortage = problem.network.stock_shortage(choice)
+        if shortage:  # more stock pieces than the shelf holds: no design, a penalty optuna learns from
+            trial.set_user_attr("choice", _choice_doc(choice))
+            trial.set_user_attr("designs", [])
+            trial.set_user_attr("evaluations", 0)
+            trial.set_user_attr("stock_shortage", shortage)
+            penalty_db = -STOCK_SHORTAGE_DB * shortage
+            return (penalty_db, STOCK_SHORTAGE_DB) if pareto else penalty_db
         rng = np.random.default_rng([settings.seed, trial.number])
         init = None
         if start != "random":
@@ -122,6 +132,8 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
         for u in res.u:
             if len(kept) >= KEEP_PER_TRIAL:
                 break
+            snaps = problem.network.snap_candidates(u)  # cut lengths to whole cut steps, re-checked
+            u = snaps[int(np.argmax(score(snaps)))] if len(snaps) > 1 else snaps[0]
             if all(np.max(np.abs(u - np.array(k["u"])), initial=0.0) > 1e-4 for k in kept) or not kept:
                 m = float(problem.margins(u, choice)[0])
                 length = float(problem.length_wl(u, choice)[0])
@@ -174,7 +186,14 @@ def collect_designs(ost: optuna.Study) -> tuple[list[Design], list[tuple[float, 
             seen.add(key)
             designs.append(Design(choice, tuple(d["u"]), d["margin_db"], d["length_wl"], t.number))
     designs.sort(key=lambda d: (-round(d.margin_db, 2), d.length_wl, d.trial))
-    return designs, [(d.margin_db, d.length_wl) for d in designs]
+    points = [(d.margin_db, d.length_wl) for d in designs]
+    # keep designs a builder would tell apart: another choice, or some value ≥ 1 % of its range away
+    distinct: list[Design] = []
+    for d in designs:
+        u = np.array(d.u)
+        if all(d.choice != k.choice or np.max(np.abs(u - np.array(k.u)), initial=0.0) > DISTINCT_U for k in distinct):
+            distinct.append(d)
+    return distinct, points
 
 
 def pareto_front(designs: list[Design]) -> list[Design]:
