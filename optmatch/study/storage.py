@@ -136,7 +136,30 @@ class RetryStaleTrial:
 # ---------------------------------------------------------------- journal
 
 
-class WatchedJournalStorage(JournalStorage, BaseHeartbeat):
+class _RecordsOwner:
+    """Writes the owner record as soon as a trial starts running here, before any heartbeat thread,
+    so a worker killed in a trial's first instant is still recognised."""
+
+    def create_new_trial(self, study_id: int, template_trial: FrozenTrial | None = None) -> int:
+        trial_id = super().create_new_trial(study_id, template_trial)  # type: ignore[misc]
+        if template_trial is None or template_trial.state == TrialState.RUNNING:
+            self.record_owner(trial_id)
+        return trial_id
+
+    def set_trial_state_values(self, trial_id: int, state: TrialState, values: Any = None) -> bool:
+        taken = super().set_trial_state_values(trial_id, state, values)  # type: ignore[misc]
+        if taken and state == TrialState.RUNNING:
+            self.record_owner(trial_id)
+        return taken
+
+    def record_owner(self, trial_id: int) -> None:
+        try:
+            self.set_trial_system_attr(trial_id, OWNER_KEY, owner_record())  # type: ignore[attr-defined]
+        except optuna.exceptions.UpdateFinishedTrialError:
+            pass  # the trial ended between two beats
+
+
+class WatchedJournalStorage(_RecordsOwner, JournalStorage, BaseHeartbeat):
     """optuna's journal storage with a heartbeat and dead-owner detection (see module notes)."""
 
     def __init__(self, backend: JournalFileBackend, heartbeat_s: int = HEARTBEAT_S,
@@ -148,10 +171,7 @@ class WatchedJournalStorage(JournalStorage, BaseHeartbeat):
         self.stale_callback = stale_callback if stale_callback is not None else RetryStaleTrial()
 
     def record_heartbeat(self, trial_id: int) -> None:
-        try:
-            self.set_trial_system_attr(trial_id, OWNER_KEY, owner_record())
-        except optuna.exceptions.UpdateFinishedTrialError:
-            pass  # the trial ended between two beats
+        self.record_owner(trial_id)
 
     def _get_stale_trial_ids(self, study_id: int) -> list[int]:
         now = time.time()
@@ -249,16 +269,13 @@ def _first_line(exc: Exception) -> str:
     return text.splitlines()[0] if text else exc.__class__.__name__
 
 
-class WatchedDatabaseStorage(RDBStorage):
+class WatchedDatabaseStorage(_RecordsOwner, RDBStorage):
     """optuna's database storage; its heartbeat also records the owner, so a dead owner on this
     host is seen at once instead of after the grace period."""
 
     def record_heartbeat(self, trial_id: int) -> None:
         super().record_heartbeat(trial_id)
-        try:
-            self.set_trial_system_attr(trial_id, OWNER_KEY, owner_record())
-        except optuna.exceptions.UpdateFinishedTrialError:
-            pass
+        self.record_owner(trial_id)
 
     def _get_stale_trial_ids(self, study_id: int) -> list[int]:
         stale = set(super()._get_stale_trial_ids(study_id))
@@ -266,6 +283,27 @@ class WatchedDatabaseStorage(RDBStorage):
         grace = self.grace_period or 2 * (self.heartbeat_interval or HEARTBEAT_S)
         stale.update(t._trial_id for t in running if OWNER_KEY in t.system_attrs and trial_is_stale(t, grace))
         return sorted(stale)
+
+
+def _shown(url: str) -> str:
+    """The URL without its password, for messages."""
+    try:
+        from sqlalchemy.engine import make_url
+
+        return make_url(url).render_as_string(hide_password=True)
+    except Exception:
+        return "(unparsable database URL)"
+
+
+def _with_driver(url: str) -> str:
+    """``postgresql://`` with the driver that is installed (SQLAlchemy 2.1 assumes psycopg 3)."""
+    if not url.startswith("postgresql://"):
+        return url
+    import importlib.util
+
+    if importlib.util.find_spec("psycopg") is None and importlib.util.find_spec("psycopg2") is not None:
+        return "postgresql+psycopg2://" + url[len("postgresql://"):]
+    return url
 
 
 def open_database(url: str) -> RDBStorage:
@@ -276,11 +314,11 @@ def open_database(url: str) -> RDBStorage:
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", optuna.exceptions.ExperimentalWarning)
-            return WatchedDatabaseStorage(url, heartbeat_interval=HEARTBEAT_S, grace_period=GRACE_S,
+            return WatchedDatabaseStorage(_with_driver(url), heartbeat_interval=HEARTBEAT_S, grace_period=GRACE_S,
                                           heartbeat_stale_trial_callback=RetryStaleTrial(),
                                           engine_kwargs=engine_kwargs)
     except Exception as exc:
-        raise StorageError(f"storage {url!r} cannot be opened: {_first_line(exc)}") from None
+        raise StorageError(f"storage {_shown(url)} cannot be opened: {_first_line(exc)}") from None
 
 
 def open_storage(url: str | None, folder: Path) -> BaseStorage:
