@@ -62,7 +62,7 @@ tbody tr:hover { background: #fafbfd; }
 .chip.error, .chip.interrupted { color: var(--fail); background: var(--fail-bg); }
 .chip.running, .chip.pending { color: var(--warn); background: var(--warn-bg); }
 .msg { color: var(--fail); font-size: 13px; word-break: break-word; }
-.plots { display: grid; grid-template-columns: repeat(auto-fit, minmax(420px, 1fr)); gap: 16px; }
+.plots { display: grid; grid-template-columns: 1fr; gap: 16px; max-width: 980px; }
 figure { margin: 0; border: 1px solid var(--line); border-radius: 8px; padding: 10px; background: #fff; }
 figure img { width: 100%; height: auto; display: block; } figcaption { color: var(--muted); font-size: 13px; }
 dl.facts { display: grid; grid-template-columns: max-content 1fr; gap: 4px 18px; margin: 0; }
