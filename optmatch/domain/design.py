@@ -10,6 +10,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from optmatch.domain.mask import worst_point
+from optmatch.domain.microstrip import velocity_factor
 from optmatch.domain.network import Choice
 from optmatch.domain.problem import Problem
 from optmatch.units import C0
@@ -68,14 +69,15 @@ def describe(problem: Problem, design: Design) -> list[ElementReport]:
         tau = float(delays[i][0])
         total = tau + el.extra_delay
         z0 = float(vals[i]["z0"][0]) if "z0" in vals[i] else med.z0
+        vf = velocity_factor(z0, med.printed) if med.printed is not None else med.vf
         end = None
         if el.kind != "line":
             end = "short" if design.choice.short[i] else "open"
         out.append(ElementReport(
             index=i, kind=el.kind, end=end, connection=None, part=None, value=None,
-            medium=med.name, z0_ohm=z0, vf=med.vf, delay_s=tau, extra_delay_s=el.extra_delay,
+            medium=med.name, z0_ohm=z0, vf=vf, delay_s=tau, extra_delay_s=el.extra_delay,
             electrical_deg=360.0 * total * problem.f_ref, wavelengths=total * problem.f_ref,
-            physical_m=tau * med.vf * C0,
+            physical_m=tau * vf * C0,
         ))
     return out
 

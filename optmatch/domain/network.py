@@ -15,6 +15,7 @@ from typing import Literal
 
 import numpy as np
 
+from optmatch.domain.microstrip import Substrate
 from optmatch.engine import Stage
 from optmatch.units import C0
 
@@ -64,6 +65,7 @@ class Medium:
     kc: float = 0.0
     kd: float = 0.0
     name: str = ""
+    printed: Substrate | None = None  # a microstrip: its VF then follows the Z0 chosen
 
 
 @dataclass(frozen=True)
@@ -238,14 +240,17 @@ class NetworkSpec:
         have = {(name, round(length, 9)): count for name, length, count in self.stock}
         return sum(max(0, n - have.get(key, 0)) for key, n in self.pieces_used(choice).items())
 
-    def snap_candidates(self, u: np.ndarray) -> np.ndarray:
-        """Every way to round the cut lengths of ``u`` (dim,) down or up to their cut steps, (m, dim).
+    def snap_candidates(self, u: np.ndarray, reach: int = 1) -> np.ndarray:
+        """Cut lengths of ``u`` (dim,) on whole cut steps: every combination of the step below and
+        above each cut length, widened by ``reach`` more steps each way while there are few cut
+        lengths (≤ 4096 combinations), shaped (m, dim).
 
         Cut lengths stay inside their bounds; a network without cut steps gives ``u`` itself.
         """
         u = np.asarray(u, dtype=float).reshape(-1)
-        options: list[list[float]] = []
+        options: list[list] = []
         cols: list[int] = []
+        bounds: list[tuple[int, int, float, Bound]] = []
         for col, fp in enumerate(self.free):
             el = self.elements[fp.element]
             step = el.cut_step_m
@@ -256,12 +261,16 @@ class NetworkSpec:
             lo_n, hi_n = math.ceil(b.lo / step - 1e-9), math.floor(b.hi / step + 1e-9)
             if lo_n > hi_n:
                 continue
-            k = min(max(math.floor(x / step + 1e-9), lo_n), hi_n)
-            near = sorted({k, min(k + 1, hi_n)})
-            options.append([b.to_unit(n * step) for n in near])
+            k = math.floor(x / step + 1e-9)
+            options.append([n for n in range(k - reach, k + reach + 2)])
             cols.append(col)
+            bounds.append((lo_n, hi_n, step, b))
         if not cols:
             return u.reshape(1, -1)
+        if math.prod(len(o) for o in options) > 4096:
+            options = [o[reach:reach + 2] for o in options]
+        options = [[b.to_unit(n * step) for n in sorted({min(max(n, lo), hi) for n in o})]
+                   for o, (lo, hi, step, b) in zip(options, bounds, strict=True)]
         grid = np.array(list(itertools.product(*options)), dtype=float)
         out = np.repeat(u.reshape(1, -1), grid.shape[0], axis=0)
         out[:, cols] = grid

@@ -15,7 +15,7 @@ import math
 import os
 import re
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal, get_args
 
@@ -24,6 +24,7 @@ import yaml
 from pydantic import BaseModel, TypeAdapter, ValidationError
 
 from optmatch.domain import loads
+from optmatch.domain.cables import Cable
 from optmatch.domain.mask import Grid, Segment, build_grid
 from optmatch.domain.network import Bound, ElementSpec, LengthBasis, Medium, NetworkSpec
 from optmatch.domain.problem import Problem
@@ -48,6 +49,7 @@ from optmatch.study.schema import (
     StudyModel,
     Z0Range,
 )
+from optmatch.study.shelf import ShelfContext, shelf_context, shelf_element, uses_shelf
 from optmatch.units import Length
 
 
@@ -89,6 +91,8 @@ class Study:
     raw: dict
     digest: str
     description: str = ""
+    cables: dict[str, Cable] = field(default_factory=dict)  # catalog in force (shipped + the study's own)
+    drive_w: float | None = None  # available source power for the power check (W)
 
 
 # ---------------------------------------------------------------- YAML
@@ -331,7 +335,8 @@ def _lumped_bound(value: SIValue | Any) -> Bound:
     return Bound(lo, hi, log=lo != hi)
 
 
-def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems) -> tuple[ElementSpec, ...] | None:
+def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
+              shelf: ShelfContext | None = None) -> tuple[ElementSpec, ...] | None:
     if net.template is not None:
         vf = net.vf if net.vf is not None else 1.0
         stepped = net.template == "stepped_line"
@@ -352,7 +357,14 @@ def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems) -
                                    value=_lumped_bound(spec.value), label=label))
             continue
         assert isinstance(spec, (LineModel, StubModel))
-        length = _length_bound(spec.length, f_ref, f"{where}.length", probs)
+        length = _length_bound(spec.length, f_ref, f"{where}.length", probs) if spec.length is not None else None
+        if uses_shelf(spec):
+            el = shelf_element(kind, spec, length, z_sys, shelf, where, label, probs.add) if shelf else None
+            if el is None:
+                ok = False
+            else:
+                out.append(el)
+            continue
         if length is None:
             ok = False
             continue
@@ -399,7 +411,8 @@ def load_study(path: str | os.PathLike) -> Study:
     parts: dict[str, Any]
     try:
         model = StudyModel.model_validate(raw)
-        parts = {k: getattr(model, k) for k in ("load", "mask", "network", "search", "system", "reference")}
+        parts = {k: getattr(model, k) for k in ("load", "mask", "network", "search", "system", "reference",
+                                                 "shelf", "drive")}
     except ValidationError as exc:
         model = None
         probs.lines.extend(_pydantic_problems(shown, exc))
@@ -411,8 +424,11 @@ def load_study(path: str | os.PathLike) -> Study:
     if "load" in parts:
         zload, ts_bytes = _zload(parts["load"], grid, p.parent, probs)
     elements = None
+    shelf = None
+    if "shelf" in parts or "shelf" not in raw:
+        shelf = shelf_context(parts.get("shelf"), p.parent, probs.add)
     if "network" in parts and f_ref is not None and "system" in parts:
-        elements = _elements(parts["network"], f_ref, parts["system"], probs)
+        elements = _elements(parts["network"], f_ref, parts["system"], probs, shelf)
 
     if model is None or probs.lines:
         raise StudyFileError(probs.lines)
@@ -421,10 +437,12 @@ def load_study(path: str | os.PathLike) -> Study:
     search = SearchSettings(trials=s.trials, time_s=s.time, seed=s.seed, target_margin_db=s.target_margin,
                             keep=s.keep, population=s.population, generations=s.generations,
                             objective=s.objective)
+    assert shelf is not None
     problem = Problem(name=model.name or _default_name(p), z_sys=model.system, grid=grid, zload=zload,
-                      network=NetworkSpec(elements), f_ref=f_ref)
+                      network=NetworkSpec(elements, shelf.stock_tuple()), f_ref=f_ref)
     return Study(path=p, problem=problem, search=search, raw=raw, digest=_digest(raw, ts_bytes),
-                 description=model.description)
+                 description=model.description, cables=shelf.catalog,
+                 drive_w=model.drive.power if model.drive is not None else None)
 
 
 def check_study(path: str | os.PathLike) -> list[str]:

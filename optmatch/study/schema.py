@@ -237,23 +237,178 @@ _PART_UNIT = {"r": "ohm", "l": "H", "c": "F"}
 _PART_EXAMPLE = {"r": "47 or 1k", "l": "15nH", "c": "2.2pF"}
 
 
+# ---------------------------------------------------------------- shelf
+
+
+def _physical(v: Length) -> Length:
+    if v.kind != "physical":
+        raise ValueError("give a physical length (mm, cm, m, in)")
+    return v
+
+
+def _physical_positive(v: Length) -> Length:
+    _physical(v)
+    if v.value <= 0:
+        raise ValueError("must be more than zero")
+    return v
+
+
+PhysicalLength = Annotated[LengthValue, AfterValidator(_physical)]
+PositivePhysicalLength = Annotated[LengthValue, AfterValidator(_physical_positive)]
+_WATTS = re.compile(rf"^\s*({_NUM})\s*([kmM]?)\s*W?\s*$")
+
+
+def _watts(v: Any) -> float:
+    """Watts from ``100``, ``100W``, ``1.5kW``; positive."""
+    if isinstance(v, bool):
+        raise ValueError(f"expected a power, got {v!r}")
+    if isinstance(v, (int, float)):
+        x = float(v)
+    else:
+        m = _WATTS.match(str(v))
+        if not m:
+            raise ValueError(f"{v!r} is not a power (write e.g. 100W or 1.5kW)")
+        x = float(m.group(1)) * {"": 1.0, "k": 1e3, "m": 1e-3, "M": 1e6}[m.group(2)]
+    if not math.isfinite(x) or x <= 0:
+        raise ValueError(f"must be a positive power, got {v!r}")
+    return x
+
+
+Watts = Annotated[float, PlainValidator(_watts)]
+
+
+def _relative_permittivity(v: Any) -> float:
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v < 1.0:
+        raise ValueError(f"relative permittivity must be a number >= 1, got {v!r}")
+    return float(v)
+
+
+class CutModel(_Model):
+    """``cut``: cut to length from a reel, in whole ``step``s, never shorter than ``min`` (cable only)."""
+
+    step: PositivePhysicalLength
+    min: PhysicalLength = Length("physical", 0.0)
+
+
+class StockPieceModel(_Model):
+    """A stock piece: ``length`` (physical, the cable itself) and how many are on the shelf."""
+
+    length: PositivePhysicalLength
+    count: Count
+    cable: Annotated[str, Field(strict=True)] | None = None
+
+
+class AllowanceModel(_Model):
+    """Electrical length a connector pair, adapter or tee adds: ``length`` with its ``vf``, or ``delay``."""
+
+    length: PhysicalLength | None = None
+    vf: VelocityFactor = 1.0
+    delay: LengthValue | None = None
+
+    @model_validator(mode="after")
+    def _one_way(self) -> AllowanceModel:
+        if (self.length is None) == (self.delay is None):
+            raise ValueError("give either length (with vf) or delay")
+        if self.delay is not None and self.delay.kind != "delay":
+            raise ValueError("delay: give a time (e.g. 0.15ns)")
+        if self.delay is not None and "vf" in self.model_fields_set:
+            raise ValueError("vf applies to a physical length, not to a delay")
+        return self
+
+    @property
+    def delay_s(self) -> float:
+        if self.delay is not None:
+            return self.delay.value
+        assert self.length is not None
+        return self.length.delay_s(1.0, self.vf)
+
+
+class MicrostripModel(_Model):
+    """``microstrip``: a printed line on a substrate of permittivity ``er``, height ``h``, copper ``t``."""
+
+    er: Annotated[float, PlainValidator(_relative_permittivity)]
+    h: PositivePhysicalLength
+    t: PhysicalLength = Length("physical", 0.0)
+
+
+AllowanceRef = Annotated[
+    Annotated[AllowanceModel, Tag("<range>")] | Annotated[str, Field(strict=True), Tag("<fixed>")],
+    Discriminator(lambda v: "<range>" if isinstance(v, dict) else "<fixed>"),
+]
+CableNames = Annotated[
+    Annotated[Annotated[list[Annotated[str, Field(strict=True)]], Field(min_length=1)], Tag("<choice>")]
+    | Annotated[str, Field(strict=True), Tag("<fixed>")],
+    Discriminator(lambda v: "<choice>" if isinstance(v, list) else "<fixed>"),
+]
+StockSpec = Annotated[
+    Annotated[Annotated[list[StockPieceModel], Field(min_length=1)], Tag("<choice>")]
+    | Annotated[bool, Field(strict=True), Tag("<fixed>")],
+    Discriminator(lambda v: "<choice>" if isinstance(v, list) else "<fixed>"),
+]
+
+
+class ShelfModel(_Model):
+    """``shelf``: cables beyond the shipped catalog, stock pieces per cable, and named allowances."""
+
+    catalog: Annotated[str, Field(strict=True)] | None = None
+    cables: dict[str, Any] | None = None
+    stock: dict[str, Annotated[list[StockPieceModel], Field(min_length=1)]] | None = None
+    allowances: dict[str, AllowanceModel] | None = None
+
+    @model_validator(mode="after")
+    def _stock_names_cable_once(self) -> ShelfModel:
+        for name, pieces in (self.stock or {}).items():
+            if any(p.cable is not None for p in pieces):
+                raise ValueError(f"stock.{name}: the cable is the key; drop 'cable' from its pieces")
+        return self
+
+
+class DriveModel(_Model):
+    """``drive``: the power the source makes available (W) into the system impedance."""
+
+    power: Watts
+
+
 # ---------------------------------------------------------------- elements
 
 
-class LineModel(_Model):
+class _LineLike(_Model):
+    """Keys shared by lines and stubs: length, Z0 and VF, or a shelf cable / printed line."""
+
+    length: LengthSpec | None = None
+    z0: Z0Value | None = None
+    vf: VelocityFactor = 1.0
+    cable: CableNames | None = None
+    cut: CutModel | None = None
+    stock: StockSpec | None = None
+    allowances: list[AllowanceRef] | None = None
+    microstrip: MicrostripModel | None = None
+
+    @model_validator(mode="after")
+    def _consistent(self) -> _LineLike:
+        given = self.model_fields_set
+        if self.cable is not None and ({"z0", "vf"} & given):
+            raise ValueError("cable sets z0 and vf; drop z0/vf or drop cable")
+        if self.microstrip is not None and ({"vf", "cable"} & given):
+            raise ValueError("microstrip sets its own velocity factor; drop vf/cable")
+        if (self.cut is not None or self.stock not in (None, False)) and self.cable is None:
+            raise ValueError("cut and stock need a cable (cable: NAME or a list of names)")
+        if self.cut is not None and self.stock not in (None, False):
+            raise ValueError("give either cut (cut to length) or stock (fixed pieces), not both")
+        if self.stock not in (None, False) and self.length is not None:
+            raise ValueError("stock pieces fix the length; drop length")
+        if self.length is None and self.stock in (None, False):
+            raise ValueError("length: required key is missing")
+        return self
+
+
+class LineModel(_LineLike):
     """``line``: a series transmission line.  ``z0`` defaults to the system impedance."""
 
-    length: LengthSpec
-    z0: Z0Value | None = None
-    vf: VelocityFactor = 1.0
 
-
-class StubModel(_Model):
+class StubModel(_LineLike):
     """``shunt_stub`` / ``series_stub``: a line ended open or short, placed as a branch."""
 
-    length: LengthSpec
-    z0: Z0Value | None = None
-    vf: VelocityFactor = 1.0
     end: EndName = "either"
 
 
@@ -491,8 +646,11 @@ class StudyModel(_Model):
     mask: MaskModel
     network: NetworkModel
     search: SearchModel = SearchModel()
+    shelf: ShelfModel | None = None
+    drive: DriveModel | None = None
 
 
 SECTION_MODELS: dict[str, type[BaseModel]] = {
     "load": LoadModel, "mask": MaskModel, "network": NetworkModel, "search": SearchModel,
+    "shelf": ShelfModel, "drive": DriveModel,
 }
