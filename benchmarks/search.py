@@ -1,0 +1,368 @@
+"""Search quality: our pipeline against simple baselines and the theoretical figure, case by case.
+
+Run: python benchmarks/search.py            (about 2-3 minutes on a 2-core machine)
+
+For every case (a study: load, mask, network, search settings) the table gives the margin (dB
+by which the worst grid point clears the mask) and the worst return loss (dB) of:
+
+  ours         run_search with an in-memory storage and the study's own search settings;
+  closed form  the best closed-form spot solution at the reference frequency (the search's seeds,
+               mapped onto the study's network), evaluated over the band;
+  scipy DE     scipy.optimize.differential_evolution on the same margin objective over the unit
+               cube, with the evaluation budget ours used (split evenly over every combination of
+               the discrete choices, one DE run each; scipy's default population of 15 per
+               coordinate, no polish, tolerance 0 so the whole budget is spent; the count printed
+               is counted, not computed);
+  optuna TPE   plain optuna (TPESampler, one network evaluation per trial: suggest_float per free
+               coordinate plus a categorical per discrete choice) for the wall time ours took;
+  theory       where one exists: the exact equal-ripple (Chebyshev) optimum of the stepped-line
+               transformer, or the Bode–Fano bound for the reactive loads (a bound, not
+               necessarily reachable by a few stubs).
+
+"ours >= baseline" allows 0.01 dB (the printed resolution). A case is a :class:`Case` in ``CASES``;
+append more cases there.  All loads, masks and the demo antenna data are invented.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import os
+import platform
+import sys
+import tempfile
+import time
+import warnings
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+import numpy as np
+import optuna
+import scipy
+from scipy.optimize import differential_evolution
+
+from optmatch.domain.bounds import (
+    bode_fano_rc_min_gamma,
+    bode_fano_rl_min_gamma,
+    chebyshev_bandwidth,
+    chebyshev_exact_gamma_max,
+    gamma_to_return_loss_db,
+)
+from optmatch.domain.mask import build_grid
+from optmatch.domain.network import Choice
+from optmatch.domain.problem import Problem
+from optmatch.study.loader import Study, load_study
+from optmatch.study.search import run_search, study_seeds
+
+REPO = Path(__file__).resolve().parent.parent
+TIE_DB = 0.01  # "at least as good" tolerance, dB
+
+optuna.logging.set_verbosity(optuna.logging.WARNING)
+
+
+# ---------------------------------------------------------------- cases
+
+
+@dataclass(frozen=True)
+class Theory:
+    """A theoretical figure: worst in-band return loss (dB) it allows, and what it is."""
+
+    label: str
+    worst_rl_db: float
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class Case:
+    """One benchmark case: a study (YAML text or a file in the repo) and its theoretical figure."""
+
+    name: str
+    study_text: str | None = None
+    study_file: str | None = None  # relative to the repository root
+    theory: Callable[[Problem], Theory | None] = field(default=lambda problem: None)
+    chebyshev: bool = False  # headline reports the gap to this case's theoretical figure
+    dense: Callable[[Problem], Problem] | None = None  # the same problem on a dense grid, to check
+
+    def load(self, workdir: Path) -> Study:
+        if self.study_file is not None:
+            return load_study(REPO / self.study_file)
+        path = workdir / f"{self.name}.yaml"
+        path.write_text(self.study_text or "")
+        return load_study(path)
+
+
+# Stepped line: ZL = 100 Ω on 50 Ω, N = 3, over the band for which Pozar's Chebyshev formula
+# (Microwave Engineering, 4th ed., sec. 5.7, eq. 5.60) gives Γm = 0.05.
+TX_N, TX_ZL, TX_Z0, TX_GM = 3, 100.0, 50.0, 0.05
+TX_BW = chebyshev_bandwidth(TX_ZL, TX_Z0, TX_N, TX_GM)
+TX_F0 = 1e9
+
+
+def _transformer_dense(problem: Problem, points: int = 4001) -> Problem:
+    """The transformer problem on a dense grid: the exact optimum holds over the continuous band."""
+    seg = problem.grid.segments[0]
+    grid = build_grid([replace(seg, points=points)])
+    return replace(problem, grid=grid, zload=np.full(grid.freq.size, TX_ZL, dtype=complex))
+
+
+def _transformer_theory(problem: Problem) -> Theory:
+    exact = chebyshev_exact_gamma_max(TX_ZL, TX_Z0, TX_N, TX_BW)
+    return Theory("Chebyshev optimum", gamma_to_return_loss_db(exact),
+                  f"exact equal ripple |Γ| {exact:.5f}; small-reflection design Γm = {TX_GM} "
+                  f"({gamma_to_return_loss_db(TX_GM):.2f} dB)")
+
+
+# Reactive loads (invented): a series R–L and a parallel R–C, each over a band of about 20-25 %.
+RL_R, RL_L, RL_LO, RL_HI = 20.0, 15e-9, 880e6, 1120e6      # 24 % band
+RC_R, RC_C, RC_LO, RC_HI = 100.0, 3e-12, 900e6, 1100e6     # 20 % band
+
+
+def _rl_theory(problem: Problem) -> Theory:
+    g = bode_fano_rl_min_gamma(RL_R, RL_L, RL_LO, RL_HI)
+    return Theory("Bode–Fano bound", gamma_to_return_loss_db(g), f"|Γ| >= {g:.4f}")
+
+
+def _rc_theory(problem: Problem) -> Theory:
+    g = bode_fano_rc_min_gamma(RC_R, RC_C, RC_LO, RC_HI)
+    return Theory("Bode–Fano bound", gamma_to_return_loss_db(g), f"|Γ| >= {g:.4f}")
+
+
+CASES: list[Case] = [
+    Case(
+        name="transformer-N3",
+        study_text=f"""
+name: bench-transformer
+load: {{impedance: {TX_ZL:g}}}
+system: {TX_Z0:g}
+reference: {TX_F0:g}Hz
+mask: {{segments: [{{from: {TX_F0 * (1 - TX_BW / 2):.6f}Hz, to: {TX_F0 * (1 + TX_BW / 2):.6f}Hz,
+                    return_loss: 25, points: 81}}]}}
+network: {{template: stepped_line, sections: {TX_N}, z0: {{min: 20, max: 200}}}}
+search: {{trials: 6, seed: 2, population: 32, generations: 40}}
+""",
+        theory=_transformer_theory,
+        chebyshev=True,
+        dense=_transformer_dense,
+    ),
+    Case(
+        name="RL-triple-stub",
+        study_text=f"""
+name: bench-rl
+load: {{series_rlc: {{r: {RL_R:g}, l: {RL_L * 1e9:g}nH}}}}
+mask: {{segments: [{{from: {RL_LO / 1e6:g}MHz, to: {RL_HI / 1e6:g}MHz, return_loss: 15, points: 41}}]}}
+network: {{template: triple_stub, spacing: 45deg, end: either}}
+search: {{trials: 10, seed: 4, population: 48, generations: 50}}
+""",
+        theory=_rl_theory,
+    ),
+    Case(
+        name="RC-double-stub",
+        study_text=f"""
+name: bench-rc
+load: {{parallel_rlc: {{r: {RC_R:g}, c: {RC_C * 1e12:g}pF}}}}
+mask: {{segments: [{{from: {RC_LO / 1e6:g}MHz, to: {RC_HI / 1e6:g}MHz, return_loss: 15, points: 41}}]}}
+network: {{template: double_stub, spacing: 45deg, end: either}}
+search: {{trials: 10, seed: 5, population: 48, generations: 50}}
+""",
+        theory=_rc_theory,
+    ),
+    Case(name="demo-whip", study_file="configs/demo_whip.yaml"),
+]
+
+
+# ---------------------------------------------------------------- methods
+
+
+@dataclass
+class Row:
+    """One method's result on one case."""
+
+    method: str
+    margin_db: float | None
+    worst_rl_db: float | None
+    evaluations: int | None = None
+    seconds: float | None = None
+    note: str = ""
+
+
+def worst_rl(problem: Problem, u: np.ndarray, choice: Choice) -> float:
+    """Worst return loss (dB) over the grid of one design."""
+    return float(np.min(problem.response(np.atleast_2d(u), choice).return_loss_db))
+
+
+def all_choices(problem: Problem) -> list[Choice]:
+    """Every combination of the network's discrete options."""
+    space = problem.network.choice_space()
+    names = [name for name, _, _ in space]
+    return [problem.network.choice_from(dict(zip(names, combo, strict=True)))
+            for combo in itertools.product(*(opts for _, _, opts in space))]
+
+
+def run_ours(study: Study, dense: Problem | None) -> tuple[Row, int, float, float | None]:
+    outcome = run_search(study, optuna.storages.InMemoryStorage())
+    best = outcome.designs[0]
+    note = f"{outcome.trials_complete} trials"
+    dense_rl = None
+    if dense is not None:
+        dense_rl = worst_rl(dense, best.vector(), best.choice)
+        note += f"; worst RL {dense_rl:.3f} dB on a {dense.grid.freq.size}-point grid"
+    row = Row("ours", best.margin_db, worst_rl(study.problem, best.vector(), best.choice),
+              outcome.evaluations, outcome.elapsed_s, note)
+    return row, outcome.evaluations, outcome.elapsed_s, dense_rl
+
+
+def run_closed_form(study: Study) -> Row:
+    problem = study.problem
+    seeds = study_seeds(problem)
+    if not seeds:
+        return Row("closed form", None, None, 0, None, "no closed-form solution fits the network")
+    margins = [float(problem.margins(s.u, s.choice)[0]) for s in seeds]
+    k = int(np.argmax(margins))
+    return Row("closed form", margins[k], worst_rl(problem, seeds[k].u, seeds[k].choice), len(seeds), None,
+               f"best of {len(seeds)}: {seeds[k].origin}")
+
+
+def run_scipy_de(study: Study, budget: int, seed: int) -> Row:
+    problem = study.problem
+    dim = problem.network.dim
+    choices = all_choices(problem)
+    share = max(budget // len(choices), 5)
+    pop = min(15 * dim, share)  # scipy's default popsize (15 per coordinate)
+    maxiter = max(math.ceil(share / pop) - 1, 0)
+    rng = np.random.default_rng(seed)
+    t0 = time.perf_counter()
+    counted = 0
+    best: tuple[float, np.ndarray, Choice] | None = None
+    for choice in choices:
+        def neg_margin(x: np.ndarray, choice: Choice = choice) -> np.ndarray:
+            nonlocal counted
+            u = np.atleast_2d(x.T)  # vectorised: x is (dim, S)
+            counted += u.shape[0]
+            return -problem.margins(u, choice)
+
+        # Latin hypercube start of exactly ``pop`` rows (scipy's own init, with a fixed size)
+        init = (rng.permuted(np.tile(np.arange(pop), (dim, 1)), axis=1).T + rng.random((pop, dim))) / pop
+        res = differential_evolution(neg_margin, [(0.0, 1.0)] * dim, maxiter=maxiter, init=init, tol=0.0,
+                                     atol=0.0, polish=False, vectorized=True, updating="deferred",
+                                     rng=rng)
+        if best is None or -res.fun > best[0]:
+            best = (float(-res.fun), res.x, choice)
+    assert best is not None
+    note = (f"{len(choices)} choice combos x pop {pop} x {maxiter + 1} gens" if len(choices) > 1
+            else f"pop {pop} x {maxiter + 1} gens")
+    return Row("scipy DE", best[0], worst_rl(problem, best[1], best[2]), counted, time.perf_counter() - t0, note)
+
+
+def run_optuna(study: Study, wall_s: float, seed: int) -> Row:
+    problem = study.problem
+    space = problem.network.choice_space()
+    dim = problem.network.dim
+
+    def objective(trial: optuna.Trial) -> float:
+        picks = {name: trial.suggest_categorical(name, opts) for name, _, opts in space}
+        u = np.array([[trial.suggest_float(f"u{k}", 0.0, 1.0) for k in range(dim)]])
+        return float(problem.margins(u, problem.network.choice_from(picks))[0])
+
+    ost = optuna.create_study(direction="maximize", sampler=optuna.samplers.TPESampler(seed=seed))
+    t0 = time.perf_counter()
+    ost.optimize(objective, timeout=wall_s)
+    elapsed = time.perf_counter() - t0
+    bt = ost.best_trial
+    choice = problem.network.choice_from({name: bt.params[name] for name, _, _ in space})
+    u = np.array([bt.params[f"u{k}"] for k in range(dim)])
+    return Row("optuna TPE", bt.value, worst_rl(problem, u, choice), len(ost.trials), elapsed,
+               f"{len(ost.trials)} trials")
+
+
+def theory_row(study: Study, case: Case) -> Row | None:
+    th = case.theory(study.problem)
+    if th is None:
+        return None
+    need = float(np.max(study.problem.grid.min_rl_db))  # single-level masks in these cases
+    return Row(f"theory: {th.label}", th.worst_rl_db - need, th.worst_rl_db, None, None, th.note)
+
+
+# ---------------------------------------------------------------- runner
+
+
+@dataclass
+class CaseResult:
+    case: Case
+    study: Study
+    rows: list[Row]
+    wins: bool
+    losses: list[str]
+    dense_rl_db: float | None = None
+
+
+def run_case(case: Case, workdir: Path) -> CaseResult:
+    study = case.load(workdir)
+    ours, budget, wall, dense_rl = run_ours(study, case.dense(study.problem) if case.dense else None)
+    rows = [ours, run_closed_form(study), run_scipy_de(study, budget, study.search.seed),
+            run_optuna(study, wall, study.search.seed)]
+    th = theory_row(study, case)
+    if th is not None:
+        rows.append(th)
+    losses = [f"{r.method} by {r.margin_db - ours.margin_db:.3f} dB" for r in rows[1:4]
+              if r.margin_db is not None and r.margin_db > (ours.margin_db or -np.inf) + TIE_DB]
+    return CaseResult(case, study, rows, not losses, losses, dense_rl)
+
+
+def cpu_model() -> str:
+    try:
+        with open("/proc/cpuinfo") as fh:
+            for line in fh:
+                if line.startswith("model name"):
+                    return line.split(":", 1)[1].strip()
+    except OSError:
+        pass
+    return platform.processor() or "unknown"
+
+
+def _fmt(x: float | None, spec: str) -> str:
+    return "-" if x is None else format(x, spec)
+
+
+def print_case(res: CaseResult) -> None:
+    pb = res.study.problem
+    f = pb.grid.freq
+    bw = (f.max() - f.min()) / pb.grid.centre * 100
+    print(f"\n{res.case.name}: {f.min() / 1e6:.1f}-{f.max() / 1e6:.1f} MHz ({bw:.1f} % band, {f.size} points), "
+          f"mask {float(np.max(pb.grid.min_rl_db)):g} dB, {len(pb.network.elements)} elements, "
+          f"{pb.network.dim} free coordinates, {len(all_choices(pb))} choice combos")
+    print(f"  {'method':<28} {'margin dB':>10} {'worst RL dB':>12} {'evaluations':>12} {'time s':>7}  note")
+    for r in res.rows:
+        print(f"  {r.method:<28} {_fmt(r.margin_db, '.3f'):>10} {_fmt(r.worst_rl_db, '.3f'):>12} "
+              f"{_fmt(r.evaluations, ',d'):>12} {_fmt(r.seconds, '.1f'):>7}  {r.note}")
+
+
+def main() -> None:
+    warnings.simplefilter("ignore")
+    print(f"machine: nproc {os.cpu_count()}, {cpu_model()}; python {sys.version.split()[0]}, numpy "
+          f"{np.__version__}, scipy {scipy.__version__}, optuna {optuna.__version__}")
+    t0 = time.perf_counter()
+    results = []
+    with tempfile.TemporaryDirectory() as tmp:
+        for case in CASES:
+            res = run_case(case, Path(tmp))
+            print_case(res)
+            results.append(res)
+    print(f"\ntotal run time {time.perf_counter() - t0:.0f} s")
+    wins = sum(r.wins for r in results)
+    head = f"search: ours >= every baseline on {wins}/{len(results)} cases"
+    losing = [f"{r.case.name} (behind {', '.join(r.losses)})" for r in results if not r.wins]
+    if losing:
+        head += f" [loses on {'; '.join(losing)}]"
+    for r in results:
+        if r.case.chebyshev:
+            ours_rl = r.dense_rl_db if r.dense_rl_db is not None else r.rows[0].worst_rl_db
+            gap = r.rows[-1].worst_rl_db - ours_rl
+            where = "dense-grid " if r.dense_rl_db is not None else ""
+            head += (f"; transformer {where}worst RL within {max(gap, 0.0):.3f} dB of the Chebyshev optimum"
+                     + (f" ({-gap:.3f} dB above it)" if gap < 0 else ""))
+    print(head)
+
+
+if __name__ == "__main__":
+    main()
