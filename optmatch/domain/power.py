@@ -1,0 +1,178 @@
+"""Voltage, current and heat along every line and stub of one design when driven at a given power.
+
+Pure numpy.  The network is walked from the load outwards as in the engine (a homogeneous state
+``(V, I)`` per frequency, scaled by a running factor ``k``), recording at each section the state at
+its ends; the standing wave along a section then follows from the line equations
+``V(z) = V₀ cosh γz + Z0 I₀ sinh γz``, ``I(z) = I₀ cosh γz + (V₀/Z0) sinh γz`` sampled along it.
+Stubs are walked from their far end (open: I = 0; short: V = 0), so the voltage at an open end and
+the current at a shorted end come out directly.  Finally everything is scaled to the source: EMF of
+a source with internal impedance ``z_sys`` whose available power is ``power_w``.
+
+Units: Hz, Ω, s, V and A as peak phasor magnitudes (peak RF values), W (average).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from optmatch.engine import Stage
+
+SAMPLES = 513  # points along each section (a 1-λ section is sampled every 0.7°)
+
+
+@dataclass(frozen=True)
+class SectionStress:
+    """Worst figures of one line or stub over the band (index = element, load outwards).
+
+    ``voltage_v``/``current_a``: peak RF voltage and current along the section, shape (F,);
+    ``dissipated_w``: power turned to heat in it, (F,); ``heating_w``: the largest local heating along
+    it expressed as the power of a matched line that heats as much, (F,); ``open_end_v``: voltage at
+    an open stub end (F,) or None.
+    """
+
+    index: int
+    voltage_v: np.ndarray
+    current_a: np.ndarray
+    dissipated_w: np.ndarray
+    heating_w: np.ndarray
+    open_end_v: np.ndarray | None
+
+
+@dataclass(frozen=True)
+class DriveResult:
+    """All sections of one design, and the input figures: delivered and accepted power (W), (F,)."""
+
+    freq: np.ndarray
+    sections: list[SectionStress]
+    accepted_w: np.ndarray
+    delivered_w: np.ndarray
+
+
+def _gamma_l(p: Mapping, freq: np.ndarray) -> np.ndarray:
+    """γℓ of a whole section on the grid, (F,)."""
+    alpha = float(p.get("loss_c", 0.0)) * np.sqrt(freq) + float(p.get("loss_d", 0.0)) * freq
+    return alpha + 1j * 2.0 * np.pi * freq * float(p["delay"])
+
+
+def _profile(v0: np.ndarray, i0: np.ndarray, z0: float, gl: np.ndarray, s: np.ndarray):
+    """State along a section from the end (v0, i0): arrays (S, F) at fractions ``s`` of its length."""
+    x = s[:, None] * gl[None, :]
+    ch, sh = np.cosh(x), np.sinh(x)
+    return ch * v0 + z0 * sh * i0, ch * i0 + sh * v0 / z0
+
+
+def _conductor_share(p: Mapping, freq: np.ndarray) -> np.ndarray:
+    c = float(p.get("loss_c", 0.0)) * np.sqrt(freq)
+    d = float(p.get("loss_d", 0.0)) * freq
+    total = c + d
+    return np.where(total > 0, c / np.where(total > 0, total, 1.0), 1.0)
+
+
+def drive(stages: Sequence[Stage], params: Sequence[Mapping], freq: np.ndarray, zload: np.ndarray | complex,
+          z_sys: float, power_w: float, samples: int = SAMPLES) -> DriveResult:
+    """Stress of every line and stub of ONE design (scalar parameters) driven with ``power_w`` available."""
+    freq = np.asarray(freq, dtype=float)
+    zl = np.broadcast_to(np.asarray(zload, dtype=complex), freq.shape)
+    v, i, k = zl.copy(), np.ones_like(zl), np.ones_like(zl)
+    s = np.linspace(0.0, 1.0, samples)
+    recorded: list[tuple[int, np.ndarray, np.ndarray, np.ndarray, float, Mapping, bool]] = []
+    for idx, (stage, p) in enumerate(zip(stages, params, strict=True)):
+        if stage.kind == "line":
+            z0 = float(p["z0"])
+            pv, pi = _profile(v, i, z0, _gamma_l(p, freq), s)
+            recorded.append((idx, pv, pi, k, z0, p, False))
+            v, i = pv[-1], pi[-1]
+            continue
+        if stage.kind == "stub":
+            z0 = float(p["z0"])
+            short = bool(np.asarray(p.get("short", False)).reshape(-1)[0])
+            far_v = np.zeros_like(v) if short else np.ones_like(v)
+            far_i = np.ones_like(v) if short else np.zeros_like(v)
+            pv, pi = _profile(far_v, far_i, z0, _gamma_l(p, freq), s)
+            bp, bq = pv[-1], pi[-1]  # stub impedance bp / bq at the junction
+            mult = v if stage.connection == "shunt" else i
+        else:
+            omega = 2.0 * np.pi * freq
+            value = float(p["value"])
+            one = np.ones_like(v)
+            bp, bq = {"r": (value * one, one), "l": (1j * omega * value, one), "c": (one, 1j * omega * value)}[stage.part]
+            mult = None
+        if stage.connection == "shunt":
+            v, i, k = v * bp, i * bp + v * bq, k * bp
+        else:
+            v, i, k = v * bq + i * bp, i * bq, k * bq
+        if stage.kind == "stub":
+            recorded.append((idx, pv * mult, pi * mult, k, z0, p, not short))
+    v_in, i_in = v / k, i / k  # physical, for 1 A into the load
+    emf = np.sqrt(8.0 * z_sys * power_w)
+    c = emf / (v_in + z_sys * i_in)  # scale of every physical quantity to the real drive
+    accepted = 0.5 * np.real(c * v_in * np.conj(c * i_in))
+    delivered = 0.5 * np.abs(c) ** 2 * np.real(zl)
+    sections = []
+    for idx, pv, pi, kk, z0, p, open_end in recorded:
+        scale = c / kk
+        vv, ii = pv * scale, pi * scale
+        flow = 0.5 * np.real(vv * np.conj(ii))  # power flowing towards the load end (line) / far end (stub)
+        dissipated = flow[-1] - (0.0 if stages[idx].kind == "stub" else flow[0])
+        w_c = _conductor_share(p, freq)
+        heat = w_c * np.abs(ii) ** 2 * z0 / 2.0 + (1.0 - w_c) * np.abs(vv) ** 2 / (2.0 * z0)
+        sections.append(SectionStress(
+            index=idx, voltage_v=np.max(np.abs(vv), axis=0), current_a=np.max(np.abs(ii), axis=0),
+            dissipated_w=dissipated, heating_w=np.max(heat, axis=0),
+            open_end_v=np.abs(vv[0]) if open_end else None,
+        ))
+    return DriveResult(freq=freq, sections=sections, accepted_w=accepted, delivered_w=delivered)
+
+
+@dataclass(frozen=True)
+class RatingCheck:
+    """One section against its cable's ratings, at the worst frequency of each figure."""
+
+    index: int
+    cable: str
+    peak_voltage_v: float
+    voltage_freq_hz: float
+    max_voltage_v: float
+    heating_w: float
+    heating_freq_hz: float
+    power_rating_w: float
+    peak_current_a: float
+    dissipated_w: float
+    open_end_v: float | None
+
+    @property
+    def voltage_ok(self) -> bool:
+        return self.peak_voltage_v <= self.max_voltage_v
+
+    @property
+    def power_ok(self) -> bool:
+        return self.heating_w <= self.power_rating_w
+
+
+def check_ratings(result: DriveResult, cables: Mapping[int, object]) -> list[RatingCheck]:
+    """Compare every section that has a catalog cable (``cables``: element index → Cable) with its ratings.
+
+    Power: the largest local heating along the section against the cable's power rating derated to
+    that frequency (1 / attenuation); voltage: the peak RF voltage anywhere along it and over the band.
+    """
+    out = []
+    for sec in result.sections:
+        cable = cables.get(sec.index)
+        if cable is None:
+            continue
+        rating = np.asarray(cable.power_rating_w(result.freq), dtype=float)  # type: ignore[attr-defined]
+        jv = int(np.argmax(sec.voltage_v))
+        jh = int(np.argmax(sec.heating_w / rating))
+        out.append(RatingCheck(
+            index=sec.index, cable=cable.name,  # type: ignore[attr-defined]
+            peak_voltage_v=float(sec.voltage_v[jv]), voltage_freq_hz=float(result.freq[jv]),
+            max_voltage_v=float(cable.max_voltage_v),  # type: ignore[attr-defined]
+            heating_w=float(sec.heating_w[jh]), heating_freq_hz=float(result.freq[jh]),
+            power_rating_w=float(rating[jh]), peak_current_a=float(np.max(sec.current_a)),
+            dissipated_w=float(np.max(sec.dissipated_w)),
+            open_end_v=None if sec.open_end_v is None else float(np.max(sec.open_end_v)),
+        ))
+    return out
