@@ -144,7 +144,7 @@ def prepare(study: Study, storage: BaseStorage) -> optuna.Study:
     """Open ``study`` in ``storage``, fail and requeue its stale trials, queue seeds if it is new."""
     ost = open_study(study, storage)
     fail_stale(ost)
-    enqueue_seeds(ost, study.problem, study_seeds(study.problem))
+    enqueue_seeds(ost, study.problem, study_seeds(study.problem), study.search.trials)
     return ost
 
 

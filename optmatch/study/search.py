@@ -10,6 +10,7 @@ attributes, so the storage holds every result and a study can be resumed or shar
 from __future__ import annotations
 
 import hashlib
+import itertools
 import json
 import time
 from collections.abc import Callable
@@ -164,12 +165,25 @@ def _complete(ost: optuna.Study) -> list[optuna.trial.FrozenTrial]:
     return [t for t in ost.get_trials(deepcopy=False) if t.state == optuna.trial.TrialState.COMPLETE]
 
 
-def enqueue_seeds(ost: optuna.Study, problem: Problem, seeds: list[Seed]) -> None:
-    """Queue one trial per distinct seed start, only when the study is new."""
+def enqueue_seeds(ost: optuna.Study, problem: Problem, seeds: list[Seed], budget: int) -> None:
+    """Queue the first trials, only when the study is new: one seed start per distinct discrete
+    choice (seeds sharing a choice share that trial's first population), then one random start
+    for each choice no seed covers, within ``budget`` trials."""
     if ost.get_trials(deepcopy=False):
         return
+    queued: list[dict] = []
+    covered: set = set()
     for k, seed in enumerate(seeds):
-        params = {**_seed_picks(problem, seed), "start": f"seed-{k}"}
+        if seed.choice in covered:
+            continue
+        covered.add(seed.choice)
+        queued.append({**_seed_picks(problem, seed), "start": f"seed-{k}"})
+    space = problem.network.choice_space()
+    for combo in itertools.product(*[options for _, _, options in space]):
+        picks = {name: opt for (name, _, _), opt in zip(space, combo, strict=True)}
+        if problem.network.choice_from(picks) not in covered:
+            queued.append({**picks, "start": "random"})
+    for params in queued[:budget]:
         ost.enqueue_trial(params, skip_if_exists=True)
 
 
@@ -223,7 +237,7 @@ def run_search(
     seeds = study_seeds(problem) if use_seeds else []
     ost = open_study(study, storage)
     if use_seeds:
-        enqueue_seeds(ost, problem, seeds)
+        enqueue_seeds(ost, problem, seeds, settings.trials)
     objective = make_objective(problem, settings, seeds, use_seeds)
     stopped = {"early": False}
 
