@@ -15,9 +15,11 @@ import numpy as np
 from optmatch import __version__
 from optmatch.domain.design import Design, describe, performance
 from optmatch.io.atomic import write_json_atomic, write_text_atomic
+from optmatch.outputs.cutlist import cut_list_csv, cut_list_markdown
 from optmatch.outputs.network_export import export_touchstone
 from optmatch.outputs.plots import plot_pareto, plot_return_loss, plot_smith
 from optmatch.outputs.tables import design_rows, summary_markdown, write_designs_csv
+from optmatch.study.build import build_view
 from optmatch.study.loader import Study
 from optmatch.study.search import SearchOutcome
 
@@ -57,6 +59,8 @@ def summary_document(study: Study, outcome: SearchOutcome, warnings: list[str]) 
     """The content of summary.json (without the file hashes)."""
     designs = [design_doc(study, d, k + 1) for k, d in enumerate(outcome.designs)]
     best = designs[0] if designs else None
+    build, build_warnings = build_view(study, outcome.designs[0]) if outcome.designs else (None, [])
+    warnings = list(warnings) + build_warnings
     return {
         "study": study.problem.name,
         "description": study.description,
@@ -81,6 +85,7 @@ def summary_document(study: Study, outcome: SearchOutcome, warnings: list[str]) 
             "settings": dict(study.search.__dict__),
         },
         "warnings": warnings,
+        "cut_list": build,
     }
 
 
@@ -108,6 +113,10 @@ def write_results(study: Study, outcome: SearchOutcome, out_root: Path,
         front = [(d.margin_db, d.length_wl) for d in outcome.pareto]
         files.append(plot_pareto(outcome.all_points, front, folder / "pareto.png"))
     files.append(write_designs_csv(design_rows(problem, outcome.designs), folder / "designs.csv"))
+    if doc.get("cut_list"):
+        files.append(write_text_atomic(folder / "cut_list.md", cut_list_markdown(doc["cut_list"], problem.name,
+                                                                                 problem.f_ref)))
+        files.append(write_text_atomic(folder / "cut_list.csv", cut_list_csv(doc["cut_list"])))
     files.append(write_text_atomic(folder / "summary.md", summary_markdown(doc)))
     doc["files"] = {p.name: _sha256(p) for p in files}
     write_json_atomic(folder / "summary.json", doc)
