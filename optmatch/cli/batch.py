@@ -48,9 +48,17 @@ def _budget(seconds: float | None) -> str:
     return f"budget {int(seconds) // 60}:{int(seconds) % 60:02d}"
 
 
+def _quiet_optuna() -> None:
+    """optuna logs an interrupted trial with a traceback; the command prints its own one line."""
+    import optuna
+
+    optuna.logging.set_verbosity(optuna.logging.ERROR)
+
+
 def run_batch_command(args: argparse.Namespace) -> int:
     from optmatch.study.batch import BatchListener, StudyEntry, run_batch
 
+    _quiet_optuna()
     err = console(stderr=True)
 
     class Display(BatchListener):
@@ -127,6 +135,7 @@ def _closing_table(entries: list, out: Path) -> None:
 def run_worker_command(args: argparse.Namespace) -> int:
     from optmatch.study.worker import join_files, stop_with_parent
 
+    _quiet_optuna()
     if args.parent_pid is not None:
         stop_with_parent(args.parent_pid)
     if args.quiet:

@@ -1,0 +1,147 @@
+"""Batch throughput: studies per hour with 1 and 2 worker processes, and the storage's share of the time.
+
+Run: python benchmarks/batch.py [--studies 4] [--trials 8] [--population 16] [--generations 10]
+
+Each study is an invented single-shunt-stub match of a different fixed load on 50 Ω over a narrow band
+around 2 GHz, with a journal file per study (the default storage).  The batch runs in this process
+(as ``optmatch batch`` does after parsing its arguments); with 2 workers it starts one helper process
+(``optmatch worker``) that shares the journals.  Storage bookkeeping is the wall time this process
+spends inside the storage's methods (every read and write of trials, heartbeats included), measured
+in the 1-worker run.  The last line is ``batch throughput 2 workers vs 1: <ratio>x``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import functools
+import os
+import platform
+import tempfile
+import threading
+import time
+from pathlib import Path
+
+from optmatch.study.batch import run_batch
+from optmatch.study.storage import WatchedJournalStorage
+
+LOADS_OHM = ["60-80j", "25+30j", "120-40j", "15-10j", "80+60j", "35-55j", "150+20j", "40+90j"]
+
+STUDY = """\
+# Invented benchmark study.
+name: bench-{k}
+system: 50
+load:
+  impedance: {load}
+mask:
+  points: 11
+  segments:
+    - {{from: 1.98GHz, to: 2.02GHz, return_loss: 15}}
+network:
+  template: single_shunt_stub
+  z0: 50
+  vf: 0.66
+  end: either
+search:
+  trials: {trials}
+  seed: {k}
+  population: {population}
+  generations: {generations}
+"""
+
+STORAGE_METHODS = ("create_new_study", "create_new_trial", "set_trial_param", "set_trial_state_values",
+                   "set_trial_user_attr", "set_trial_system_attr", "get_trial", "get_all_trials",
+                   "get_study_id_from_name", "get_study_directions", "get_study_user_attrs",
+                   "get_study_system_attrs", "get_all_studies", "get_trial_id_from_study_id_trial_number",
+                   "get_n_trials", "get_best_trial", "_get_stale_trial_ids", "record_heartbeat")
+
+
+class StorageClock:
+    """Adds up wall time spent in the journal storage's methods (outermost calls only, per thread)."""
+
+    def __init__(self) -> None:
+        self.seconds = 0.0
+        self.calls = 0
+        self._depth = threading.local()
+        self._lock = threading.Lock()
+        self._saved: dict[str, object] = {}
+
+    def __enter__(self) -> StorageClock:
+        for name in STORAGE_METHODS:
+            original = getattr(WatchedJournalStorage, name)
+            self._saved[name] = WatchedJournalStorage.__dict__.get(name)
+            setattr(WatchedJournalStorage, name, self._timed(original))
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        for name, saved in self._saved.items():
+            if saved is None:
+                delattr(WatchedJournalStorage, name)
+            else:
+                setattr(WatchedJournalStorage, name, saved)
+
+    def _timed(self, fn):
+        clock = self
+
+        @functools.wraps(fn)
+        def wrapper(*args, **kwargs):
+            depth = getattr(clock._depth, "n", 0)
+            clock._depth.n = depth + 1
+            start = time.perf_counter()
+            try:
+                return fn(*args, **kwargs)
+            finally:
+                clock._depth.n = depth
+                if depth == 0:
+                    with clock._lock:
+                        clock.seconds += time.perf_counter() - start
+                        clock.calls += 1
+
+        return wrapper
+
+
+def write_studies(folder: Path, n: int, trials: int, population: int, generations: int) -> None:
+    folder.mkdir(parents=True, exist_ok=True)
+    for k in range(n):
+        text = STUDY.format(k=k, load=LOADS_OHM[k % len(LOADS_OHM)], trials=trials, population=population,
+                            generations=generations)
+        (folder / f"bench_{k}.yaml").write_text(text, encoding="utf-8")
+
+
+def timed_batch(folder: Path, out: Path, workers: int) -> float:
+    start = time.perf_counter()
+    entries = run_batch(folder, out, workers=workers)
+    elapsed = time.perf_counter() - start
+    bad = [e for e in entries if e.status != "done"]
+    if bad:
+        raise SystemExit(f"benchmark batch failed: {bad[0].name}: {bad[0].message}")
+    return elapsed
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--studies", type=int, default=4)
+    ap.add_argument("--trials", type=int, default=8)
+    ap.add_argument("--population", type=int, default=16)
+    ap.add_argument("--generations", type=int, default=10)
+    args = ap.parse_args()
+
+    print(f"machine: {platform.processor() or platform.machine()}, {os.cpu_count()} cores, "
+          f"python {platform.python_version()}")
+    print(f"studies: {args.studies} × {args.trials} trials (population {args.population}, "
+          f"generations {args.generations}), journal file per study")
+    with tempfile.TemporaryDirectory(prefix="optmatch-bench-") as tmp:
+        folder = Path(tmp) / "studies"
+        write_studies(folder, args.studies, args.trials, args.population, args.generations)
+        with StorageClock() as clock:
+            one = timed_batch(folder, Path(tmp) / "out1", workers=1)
+        two = timed_batch(folder, Path(tmp) / "out2", workers=2)
+    per_hour = [args.studies * 3600.0 / t for t in (one, two)]
+    print(f"1 worker : {one:7.1f} s  {per_hour[0]:7.0f} studies/hour")
+    print(f"2 workers: {two:7.1f} s  {per_hour[1]:7.0f} studies/hour")
+    print(f"storage bookkeeping, 1 worker: {clock.seconds:.2f} s in {clock.calls} calls "
+          f"= {100.0 * clock.seconds / one:.1f} % of the batch's wall time")
+    print(f"batch throughput 2 workers vs 1: {one / two:.2f}x")
+
+
+if __name__ == "__main__":
+    main()
