@@ -261,19 +261,41 @@ def _design_rows(summary: Mapping) -> list[list[str]]:
 DESIGN_HEAD = ("Rank", "Mask", "Elements, load outwards", "Margin (dB)", "Worst RL (dB)", "At (MHz)", "Length (λ)")
 
 
+CUT_COLUMNS = (("element", "#"), ("part", "Part"), ("cable", "Cable"), ("source", "From"),
+               ("cut_mm", "Cut (mm)"), ("cut_long_mm", "Cut long (mm)"), ("electrical_deg", "Electrical (°)"),
+               ("width_mm", "Width (mm)"), ("advice", "Advice"))
+
+
+def _cut_cell(value: Any, key: str) -> str:
+    if value is None or value == "":
+        return DASH
+    if isinstance(value, float):
+        return f"{value:.1f}" if key.endswith(("_mm", "_deg")) else f"{value:.4g}"
+    return str(value)
+
+
 def _cut_table(pieces: list) -> tuple[list[str], list[list[str]]]:
-    """Header and rows of the cut list, whatever keys its pieces carry."""
-    keys: list[str] = []
-    for p in pieces:
-        for k in (p.keys() if isinstance(p, Mapping) else ["piece"]):
-            if k not in keys:
-                keys.append(k)
-    rows = []
-    for p in pieces:
-        p = p if isinstance(p, Mapping) else {"piece": p}
-        rows.append([_num(p.get(k), ".4g") if isinstance(p.get(k), float) else
-                     (DASH if p.get(k) is None else str(p.get(k))) for k in keys])
-    return [k.replace("_", " ") for k in keys], rows
+    """Header and rows of the cut list: the builder's columns that any piece fills, else every key."""
+    dicts = [p if isinstance(p, Mapping) else {"piece": p} for p in pieces]
+    known = [(k, label) for k, label in CUT_COLUMNS if any(d.get(k) not in (None, "") for d in dicts)]
+    if not known:
+        keys: list[str] = []
+        for d in dicts:
+            keys += [k for k in d if k not in keys]
+        known = [(k, k.replace("_", " ")) for k in keys]
+    return [label for _, label in known], [[_cut_cell(d.get(k), k) for k, _ in known] for d in dicts]
+
+
+def _cut_notes(summary: Mapping) -> list[str]:
+    """Cable totals and the trim rule that come with a cut list."""
+    cut = summary.get("cut_list")
+    if not isinstance(cut, Mapping):
+        return []
+    notes = [f"{t.get('cable', '?')}: {t.get('pieces', '?')} pieces, {_num(t.get('total_mm'), '.0f')} mm in total"
+             for t in cut.get("cable_totals") or [] if isinstance(t, Mapping)]
+    if cut.get("trim_rule"):
+        notes.append(f"Trim: {cut['trim_rule']}")
+    return notes
 
 
 def _html_table(head: Sequence[str], rows: list[list[str]], numeric_from: int) -> str:
@@ -302,7 +324,8 @@ def study_html(row: Row, folder: Path) -> str:
     pieces = cut_list_pieces(s)
     if pieces:
         head, rows = _cut_table(pieces)
-        cut = _html_table(head, rows, len(head))
+        notes = "".join(f"<li>{_e(n)}</li>" for n in _cut_notes(s))
+        cut = _html_table(head, rows, len(head)) + (f"<ul>{notes}</ul>" if notes else "")
     else:
         cut = "<p>No cut list in this study's results yet.</p>" if pieces is None else "<p>Nothing to cut.</p>"
     desc = f'<p class="sub">{_e(s.get("description", ""))}</p>' if s.get("description") else ""
@@ -360,6 +383,9 @@ def study_markdown(row: Row, folder: Path) -> str:
     if pieces:
         head, rows = _cut_table(pieces)
         lines += _md_table(head, rows, len(head))
+        notes = _cut_notes(s)
+        if notes:
+            lines += ["", *[f"- {n}" for n in notes]]
     else:
         lines.append("No cut list in this study's results yet." if pieces is None else "Nothing to cut.")
     lines += ["", "## Before you build", "", *[f"- {c}" for c in CAUTIONS], ""]
