@@ -97,19 +97,6 @@ def margin_db(gamma_sq: np.ndarray, delivered: np.ndarray | None, grid: Grid) ->
         return -10.0 * np.log10(worst)
 
 
-def smooth_margin_db(gamma_sq: np.ndarray, delivered: np.ndarray | None, grid: Grid, beta: float) -> np.ndarray:
-    """Smooth under-estimate of the margin: −(1/β)·log Σ exp(β·shortfall_dB) (β in 1/dB).
-
-    It tends to :func:`margin_db` as β grows and is differentiable, for gradient polish.
-    """
-    r = margin_terms(gamma_sq, delivered, grid)
-    with np.errstate(divide="ignore"):
-        short_db = 10.0 * np.log10(np.maximum(r, 1e-300))
-    top = np.max(short_db, axis=-1, keepdims=True)
-    lse = top[..., 0] + np.log(np.sum(np.exp(beta * (short_db - top)), axis=-1)) / beta
-    return -lse
-
-
 def worst_point(gamma_sq: np.ndarray, grid: Grid) -> tuple[int, float]:
     """Index of the grid point with the least return-loss clearance, and the return loss there (dB)."""
     with np.errstate(divide="ignore"):

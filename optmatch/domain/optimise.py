@@ -1,5 +1,5 @@
 """Inner search for one set of discrete choices: a vectorised population search over the unit
-cube, then a gradient polish of the best few on a smooth minimax surrogate.
+cube, then an exact minimax polish of the best few (SLSQP on the per-point shortfalls).
 
 Pure numerics (numpy, scipy); the objective is any function mapping unit vectors (n, d) to a
 score per row (higher is better), so whole generations go through the engine as one batch.
@@ -80,42 +80,6 @@ def population_search(
     return InnerResult(u=pop[order], score=fit[order], evaluations=evals)
 
 
-def polish(
-    smooth: Callable[[np.ndarray, float], np.ndarray],
-    u0: np.ndarray,
-    betas: tuple[float, ...] = (2.0, 8.0, 32.0),
-    step: float = 1e-6,
-    max_iter: int = 60,
-) -> tuple[np.ndarray, int]:
-    """Local polish of one point with L-BFGS-B on ``-smooth(u, β)`` within the unit cube.
-
-    ``smooth(u (n, d), β) -> (n,)`` is the smooth score; its gradient is taken by forward
-    differences evaluated as one batch of d + 1 points.  Returns the point and evaluations used.
-    """
-    d = u0.size
-    evals = 0
-    u = np.asarray(u0, dtype=float).copy()
-    eye = np.eye(d) * step
-
-    for beta in betas:
-
-        def fun(x: np.ndarray, beta: float = beta) -> tuple[float, np.ndarray]:
-            nonlocal evals
-            pts = np.vstack([x, np.clip(x + eye, 0.0, 1.0)])
-            vals = -smooth(pts, beta)
-            evals += d + 1
-            h = pts[1:] - x
-            h_diag = np.where(np.abs(np.diag(h)) > 0, np.diag(h), step)
-            grad = (vals[1:] - vals[0]) / h_diag
-            return float(vals[0]), grad
-
-        res = minimize(fun, u, jac=True, method="L-BFGS-B", bounds=[(0.0, 1.0)] * d,
-                       options={"maxiter": max_iter})
-        if np.all(np.isfinite(res.x)):
-            u = res.x
-    return u, evals
-
-
 def minimax_polish(
     shortfall: Callable[[np.ndarray], np.ndarray],
     u0: np.ndarray,
@@ -169,20 +133,16 @@ def minimax_polish(
 
 def inner_search(
     score: Objective,
-    smooth: Callable[[np.ndarray, float], np.ndarray],
+    shortfall: Callable[[np.ndarray], np.ndarray],
     dim: int,
     rng: np.random.Generator,
     seeds: np.ndarray | None = None,
     population: int = 64,
     generations: int = 60,
     polish_top: int = 3,
-    shortfall: Callable[[np.ndarray], np.ndarray] | None = None,
 ) -> InnerResult:
-    """Population search, then polish the best ``polish_top`` distinct points; best first.
-
-    With ``shortfall`` (per-point dB shortfall, see :func:`minimax_polish`) the smooth polish is
-    followed by an exact minimax refinement.
-    """
+    """Population search, then an exact minimax polish (:func:`minimax_polish` on the per-point
+    ``shortfall``) of the best ``polish_top`` distinct points; results best first."""
     if dim == 0:
         u = np.zeros((1, 0))
         return InnerResult(u=u, score=score(u), evaluations=1)
@@ -201,11 +161,8 @@ def inner_search(
             picked.append(far[0])
     polished = []
     for cand in picked:
-        x, used = polish(smooth, cand)
+        x, used = minimax_polish(shortfall, cand)
         evals += used
-        if shortfall is not None:
-            x, used = minimax_polish(shortfall, x)
-            evals += used
         polished.append(x)
     allu = np.vstack([np.array(polished), res.u])
     allscore = np.concatenate([score(np.array(polished)), res.score])

@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from optmatch.domain.mask import Grid, margin_db, margin_terms, smooth_margin_db
+from optmatch.domain.mask import Grid, margin_db, margin_terms
 from optmatch.domain.network import Choice, NetworkSpec
 from optmatch.engine import Response, evaluate, evaluate_reduced
 
@@ -36,17 +36,14 @@ class Problem:
         params = self.network.engine_params(np.atleast_2d(u), choice)
         return evaluate(self.network.stages, params, self.grid.freq, self.zload, self.z_sys)
 
-    def margins(self, u: np.ndarray, choice: Choice, beta: float | None = None) -> np.ndarray:
-        """Margin (dB) per design; the smooth under-estimate when ``beta`` (1/dB) is given."""
+    def margins(self, u: np.ndarray, choice: Choice) -> np.ndarray:
+        """Margin (dB) per design: worst case over the grid, negative when the mask is failed."""
         u = np.atleast_2d(u)
         params = self.network.engine_params(u, choice)
         need_power = self.grid.has_loss_limit
 
         def red(r: Response) -> np.ndarray:
-            delivered = r.delivered if need_power else None
-            if beta is None:
-                return margin_db(r.gamma_sq, delivered, self.grid)
-            return smooth_margin_db(r.gamma_sq, delivered, self.grid, beta)
+            return margin_db(r.gamma_sq, r.delivered if need_power else None, self.grid)
 
         return evaluate_reduced(self.network.stages, params, self.grid.freq, self.zload, self.z_sys, reducer=red)
 

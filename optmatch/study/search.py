@@ -120,15 +120,11 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
         def score(u: np.ndarray) -> np.ndarray:
             return problem.margins(u, choice) - penalty * problem.length_wl(u, choice)
 
-        def smooth(u: np.ndarray, beta: float) -> np.ndarray:
-            return problem.margins(u, choice, beta=beta) - penalty * problem.length_wl(u, choice)
-
         def shortfall(u: np.ndarray) -> np.ndarray:
             return problem.shortfalls_db(u, choice) + (penalty * problem.length_wl(u, choice))[:, None]
 
-        res = inner_search(score, smooth, problem.network.dim, rng, seeds=init,
-                           population=settings.population, generations=settings.generations,
-                           shortfall=shortfall)
+        res = inner_search(score, shortfall, problem.network.dim, rng, seeds=init,
+                           population=settings.population, generations=settings.generations)
         kept: list[dict] = []
         for u in res.u:
             if len(kept) >= KEEP_PER_TRIAL:
