@@ -283,6 +283,148 @@ def theory_row(study: Study, case: Case) -> Row | None:
     return Row(f"theory: {th.label}", th.worst_rl_db - need, th.worst_rl_db, None, None, th.note)
 
 
+# ---------------------------------------------------------------- shelf-constrained versions
+#
+# Each case again, built from the shelf: catalog cables, lengths cut in whole steps, stock pieces with
+# counts, connector allowances.  Its continuous twin has the same cables, allowances and topology with
+# free lengths (a stock stub's range covering the pieces), so the gap is what the shelf costs.
+
+_SHELF_RG = """
+name: bench-rl-{kind}
+load: {{series_rlc: {{r: {r:g}, l: {l_nh:g}nH}}}}
+mask: {{segments: [{{from: {lo:g}MHz, to: {hi:g}MHz, return_loss: 15, points: 41}}]}}
+shelf:
+  stock:
+    semi-rigid-141: [{{length: 20mm, count: 1}}, {{length: 30mm, count: 1}}, {{length: 40mm, count: 1}},
+                     {{length: 50mm, count: 1}}, {{length: 60mm, count: 1}}, {{length: 70mm, count: 1}},
+                     {{length: 80mm, count: 1}}, {{length: 90mm, count: 1}}]
+  allowances:
+    sma_tee_arm: {{length: 6mm, vf: 0.70}}
+network:
+  elements:
+    - line: {{length: {{min: 0deg, max: 180deg}}, cable: semi-rigid-141{cut}}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, cable: semi-rigid-141{cut}, allowances: [sma_tee_arm]}}
+    - line: {{length: 45deg, cable: semi-rigid-141{cut}}}
+    - shunt_stub: {{{stock_stub}, end: either, cable: semi-rigid-141, allowances: [sma_tee_arm]}}
+    - line: {{length: 45deg, cable: semi-rigid-141{cut}}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, cable: semi-rigid-141{cut}, allowances: [sma_tee_arm]}}
+search: {{trials: {trials}, seed: 4, population: 48, generations: 50}}
+"""
+
+_SHELF_RC = """
+name: bench-rc-{kind}
+load: {{parallel_rlc: {{r: {r:g}, c: {c_pf:g}pF}}}}
+mask: {{segments: [{{from: {lo:g}MHz, to: {hi:g}MHz, return_loss: 15, points: 41}}]}}
+network:
+  elements:
+    - line: {{length: {{min: 0deg, max: 180deg}}, cable: semi-rigid-141{cut}}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, cable: semi-rigid-141{cut}}}
+    - line: {{length: 45deg, cable: semi-rigid-141{cut}}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, cable: semi-rigid-141{cut}}}
+search: {{trials: 10, seed: 5, population: 48, generations: 50}}
+"""
+
+_SHELF_TX = """
+name: bench-transformer-{kind}
+load: {{impedance: {zl:g}}}
+system: {z0:g}
+reference: {f0:g}Hz
+mask: {{segments: [{{from: {flo:.6f}Hz, to: {fhi:.6f}Hz, return_loss: 25, points: 81}}]}}
+shelf:
+  cables:
+    RG-62-class:   # 93-ohm air-spaced PE, typical of published datasheets, recalled from memory
+      z0: 93
+      z0_tolerance: 5
+      vf: 0.84
+      vf_tolerance: 0.02
+      attenuation: [{{freq: 100MHz, db_per_100m: 10}}, {{freq: 1GHz, db_per_100m: 33}}]
+      max_voltage: 1000
+      max_power: {{watts: 200, freq: 100MHz}}
+network:
+  elements:
+{sections}search: {{trials: 30, seed: 2, population: 32, generations: 40}}
+"""
+_TX_CABLES = "[RG-58-class, RG-59-class, RG-62-class]"
+
+
+def _tx_text(kind: str) -> str:
+    cut = ", cut: {step: 1mm, min: 5mm}" if kind == "shelf" else ""
+    sections = "".join(f"    - line: {{length: {{min: 60deg, max: 120deg}}, cable: {_TX_CABLES}{cut}}}\n"
+                       for _ in range(TX_N))
+    return _SHELF_TX.format(kind=kind, zl=TX_ZL, z0=TX_Z0, f0=TX_F0, flo=TX_F0 * (1 - TX_BW / 2),
+                            fhi=TX_F0 * (1 + TX_BW / 2), sections=sections)
+
+
+def _rl_text(kind: str) -> str:
+    shelf = kind == "shelf"
+    return _SHELF_RG.format(kind=kind, r=RL_R, l_nh=RL_L * 1e9, lo=RL_LO / 1e6, hi=RL_HI / 1e6,
+                            cut=", cut: {step: 1mm, min: 3mm}" if shelf else "",
+                            stock_stub="stock: true" if shelf else "length: {min: 5deg, max: 180deg}",
+                            trials=30 if shelf else 10)
+
+
+def _rc_text(kind: str) -> str:
+    return _SHELF_RC.format(kind=kind, r=RC_R, c_pf=RC_C * 1e12, lo=RC_LO / 1e6, hi=RC_HI / 1e6,
+                            cut=", cut: {step: 1mm, min: 3mm}" if kind == "shelf" else "")
+
+
+def _demo_continuous_text() -> str:
+    """configs/demo_whip_shelf.yaml with free lengths: no cut steps, the stock stub free over its pieces."""
+    text = (REPO / "configs" / "demo_whip_shelf.yaml").read_text(encoding="utf-8")
+    text = text.replace(", cut: {step: 2mm, min: 10mm}", "")
+    return text.replace("stock: true,", "length: {min: 5deg, max: 270deg},")
+
+
+SHELF_CASES: list[tuple[str, Callable[[], str], Callable[[], str]]] = [
+    ("transformer-N3 (cable choice, 1 mm cuts)", lambda: _tx_text("free"), lambda: _tx_text("shelf")),
+    ("RL-triple-stub (1 mm cuts, stock stub, tees)", lambda: _rl_text("free"), lambda: _rl_text("shelf")),
+    ("RC-double-stub (1 mm cuts)", lambda: _rc_text("free"), lambda: _rc_text("shelf")),
+    ("demo-whip-shelf (configs/demo_whip_shelf.yaml)", _demo_continuous_text,
+     lambda: (REPO / "configs" / "demo_whip_shelf.yaml").read_text(encoding="utf-8")),
+]
+
+
+def _shelf_margin(text: str, workdir: Path, name: str) -> tuple[float, float, Study, object]:
+    path = workdir / f"{name}.yaml"
+    path.write_text(text, encoding="utf-8")
+    if "demo_whip" in text or "whip_uhf_invented" in text:
+        path = REPO / "configs" / f"_bench_{name}.yaml"  # the demo's Touchstone path is relative to configs/
+        path.write_text(text, encoding="utf-8")
+    try:
+        study = load_study(path)
+    finally:
+        if path.parent == REPO / "configs":
+            path.unlink()
+    outcome = run_search(study, optuna.storages.InMemoryStorage())
+    return outcome.designs[0].margin_db, outcome.elapsed_s, study, outcome.designs[0]
+
+
+def run_shelf(workdir: Path) -> list[tuple[str, float, float, float, float, bool]]:
+    """Per case: (name, continuous margin, shelf margin, seconds free, seconds shelf, shelf rules kept)."""
+    out = []
+    for k, (name, free_text, shelf_text) in enumerate(SHELF_CASES):
+        m_free, t_free, _, _ = _shelf_margin(free_text(), workdir, f"shelf{k}-free")
+        m_shelf, t_shelf, study, best = _shelf_margin(shelf_text(), workdir, f"shelf{k}-shelf")
+        net = study.problem.network
+        ok = net.stock_shortage(best.choice) == 0
+        vals = net.values(best.vector())
+        for fp in net.free:
+            el = net.elements[fp.element]
+            if el.cut_step_m and fp.quantity == "length" and el.piece(best.choice.medium[fp.element]) is None:
+                x = float(vals[fp.element]["length"][0]) / el.cut_step_m
+                ok &= abs(x - round(x)) < 1e-6
+        out.append((name, m_free, m_shelf, t_free, t_shelf, ok))
+    return out
+
+
+def print_shelf(rows: list[tuple[str, float, float, float, float, bool]]) -> None:
+    print("\nshelf-constrained versions (same topology, cables and allowances; continuous lengths vs the shelf)")
+    print(f"  {'case':<48} {'continuous dB':>13} {'shelf dB':>9} {'shelf - cont.':>13} {'time s':>11}  rules kept")
+    for name, m_free, m_shelf, t_free, t_shelf, ok in rows:
+        print(f"  {name:<48} {m_free:>13.3f} {m_shelf:>9.3f} {m_shelf - m_free:>+13.3f} "
+              f"{t_free:>5.1f}/{t_shelf:<5.1f}  {'yes' if ok else 'NO'}")
+
+
 # ---------------------------------------------------------------- runner
 
 
@@ -348,6 +490,8 @@ def main() -> None:
             res = run_case(case, Path(tmp))
             print_case(res)
             results.append(res)
+        shelf_rows = run_shelf(Path(tmp))
+        print_shelf(shelf_rows)
     print(f"\ntotal run time {time.perf_counter() - t0:.0f} s")
     wins = sum(r.wins for r in results)
     head = f"search: ours >= every baseline on {wins}/{len(results)} cases"
@@ -361,6 +505,11 @@ def main() -> None:
             where = "dense-grid " if r.dense_rl_db is not None else ""
             head += (f"; transformer {where}worst RL within {max(gap, 0.0):.3f} dB of the Chebyshev optimum"
                      + (f" ({-gap:.3f} dB above it)" if gap < 0 else ""))
+    worst = min(shelf_rows, key=lambda r: r[2] - r[1])
+    demo = next(r for r in shelf_rows if r[0].startswith("demo"))
+    head += (f"; shelf: constrained margin at most {max(0.0, worst[1] - worst[2]):.2f} dB below continuous "
+             f"(worst {worst[0].split(' ')[0]}), demo {demo[1] - demo[2]:+.2f} dB below, "
+             f"shelf rules kept on {sum(r[5] for r in shelf_rows)}/{len(shelf_rows)}")
     print(head)
 
 
