@@ -308,6 +308,8 @@ def summary_markdown(doc: Mapping) -> str:
             lines.append(f"- Network evaluations: {search['evaluations']}")
         if "elapsed_s" in search:
             lines.append(f"- Elapsed: {float(search['elapsed_s']):.1f} s")
+        if "trial_time_s" in search:
+            lines.append(f"- Time in trials, all runs: {float(search['trial_time_s']):.1f} s")
         if search.get("stopped_early"):
             lines.append("- Stopped early: the target margin was reached")
         if seeds:

@@ -80,6 +80,7 @@ def summary_document(study: Study, outcome: SearchOutcome, warnings: list[str]) 
             "trials_complete": outcome.trials_complete,
             "evaluations": outcome.evaluations,
             "elapsed_s": outcome.elapsed_s,
+            "trial_time_s": outcome.trial_time_s,
             "stopped_early": outcome.stopped_early,
             "seeds": [s.origin for s in outcome.seeds],
             "settings": dict(study.search.__dict__),

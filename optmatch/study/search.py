@@ -47,7 +47,8 @@ class SearchOutcome:
     all_points: list[tuple[float, float]]
     trials_complete: int
     evaluations: int
-    elapsed_s: float
+    elapsed_s: float          # this run (s)
+    trial_time_s: float       # all complete trials, this run and earlier ones (s)
     seeds: list[Seed]
     stopped_early: bool
 
@@ -268,6 +269,7 @@ def run_search(
         trials_complete=len(complete),
         evaluations=evaluations,
         elapsed_s=time.monotonic() - start_time,
+        trial_time_s=sum((t.duration.total_seconds() for t in complete if t.duration is not None), 0.0),
         seeds=seeds,
         stopped_early=stopped["early"],
     )
