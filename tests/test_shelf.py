@@ -204,3 +204,36 @@ def test_overdriven_design_is_flagged(tmp_path):
     # recalled from memory); 5 kW into a stub network far exceeds that, 1 W does not
     assert warn_low == []
     assert any(w.startswith("OVER RATING at 5000 W") and "RG-174-class" in w for w in warn_high)
+
+
+def test_study_catalog_file_and_inline_cables(tmp_path):
+    (tmp_path / "mine.yaml").write_text(textwrap.dedent("""
+        cables:
+          hardline-half:
+            z0: 50
+            vf: 0.88
+            attenuation: [{freq: 100MHz, db_per_100m: 2.2}, {freq: 1GHz, db_per_100m: 7.6}]
+            max_voltage: 4000
+            max_power: {watts: 2.5kW, freq: 100MHz}
+        """), encoding="utf-8")
+    study = study_of(tmp_path, """
+        shelf:
+          catalog: mine.yaml
+          cables:
+            twin-75:
+              z0: 75
+              vf: 0.8
+              attenuation: [{freq: 100MHz, db_per_100m: 5}, {freq: 1GHz, db_per_100m: 18}]
+              max_voltage: 1000
+              max_power: {watts: 100, freq: 100MHz}
+        network:
+          elements:
+            - line: {length: 90deg, cable: hardline-half}
+            - line: {length: 90deg, cable: twin-75}
+        search: {trials: 1}
+        """)
+    media = [el.media[0] for el in study.problem.network.elements]
+    # the user's figures, as given in the files (velocity factor and Z0 carried to the line medium)
+    assert (media[0].name, media[0].vf, media[0].z0) == ("hardline-half", 0.88, 50.0)
+    assert (media[1].name, media[1].vf, media[1].z0) == ("twin-75", 0.8, 75.0)
+    assert "RG-58-class" in study.cables  # the shipped catalog stays in force

@@ -427,6 +427,10 @@ def load_study(path: str | os.PathLike) -> Study:
     shelf = None
     if "shelf" in parts or "shelf" not in raw:
         shelf = shelf_context(parts.get("shelf"), p.parent, probs.add)
+        cat_file = parts["shelf"].catalog if parts.get("shelf") is not None else None
+        if cat_file is not None:  # a changed catalog is a changed study
+            cat_path = Path(cat_file) if Path(cat_file).is_absolute() else p.parent / cat_file
+            ts_bytes += cat_path.read_bytes() if cat_path.is_file() else b""
     if "network" in parts and f_ref is not None and "system" in parts:
         elements = _elements(parts["network"], f_ref, parts["system"], probs, shelf)
 
