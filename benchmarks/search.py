@@ -508,7 +508,7 @@ def main() -> None:
     worst = min(shelf_rows, key=lambda r: r[2] - r[1])
     demo = next(r for r in shelf_rows if r[0].startswith("demo"))
     head += (f"; shelf: constrained margin at most {max(0.0, worst[1] - worst[2]):.2f} dB below continuous "
-             f"(worst {worst[0].split(' ')[0]}), demo {demo[1] - demo[2]:+.2f} dB below, "
+             f"(worst {worst[0].split(' ')[0]}), demo {demo[1] - demo[2]:.2f} dB below, "
              f"shelf rules kept on {sum(r[5] for r in shelf_rows)}/{len(shelf_rows)}")
     print(head)
 
