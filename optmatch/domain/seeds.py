@@ -53,7 +53,10 @@ def _length_value(el: ElementSpec, medium: int, wavelengths: float, f_ref: float
     """The element's length value for ``wavelengths`` at f_ref, or None if outside its bounds."""
     if el.length is None:
         return None
-    value = _delay_to_basis(el, medium, wavelengths / f_ref)
+    cable_delay = wavelengths / f_ref - el.extra_delay  # allowances supply part of the length
+    if cable_delay < -1e-18:
+        return None
+    value = _delay_to_basis(el, medium, max(cable_delay, 0.0))
     lo, hi = el.length.lo, el.length.hi
     tol = 1e-9 * max(abs(hi), 1e-30) + 1e-15
     if lo - tol <= value <= hi + tol:
