@@ -62,8 +62,11 @@ def print_designs(doc: dict) -> None:
 
 
 def run_run(args: argparse.Namespace) -> int:
+    import optuna
+
     from optmatch.study.pipeline import run_study
 
+    optuna.logging.set_verbosity(optuna.logging.ERROR)  # an interrupted trial is not a traceback
     study = load_study(args.file)
     if args.quiet:
         folder, doc = run_study(study, args.out, args.storage, progress_fn=None)
@@ -81,6 +84,8 @@ def run_run(args: argparse.Namespace) -> int:
     elif not args.quiet:
         print_designs(doc)
         console().print(f"results: {folder}")
+        if (folder / "cut_list.md").exists():
+            console().print(f"cut list: {folder / 'cut_list.md'}")
     return 0 if doc["verdict"] == "PASS" else EXIT_FAILS_MASK
 
 
