@@ -15,13 +15,13 @@ from __future__ import annotations
 
 import argparse
 import os
-import platform
 import time
 import tracemalloc
 import warnings
 
 import numpy as np
 import skrf
+from machine import cpu_model
 
 from optmatch.engine import Stage, evaluate_reduced, worst_gamma_sq
 
@@ -71,17 +71,6 @@ def best_time(fn, repeats: int) -> float:
         fn()
         best = min(best, time.perf_counter() - t0)
     return best
-
-
-def cpu_model() -> str:
-    try:
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    return line.split(":", 1)[1].strip()
-    except OSError:
-        pass
-    return platform.processor() or "unknown"
 
 
 def main() -> None:

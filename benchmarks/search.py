@@ -28,7 +28,6 @@ from __future__ import annotations
 import itertools
 import math
 import os
-import platform
 import sys
 import tempfile
 import time
@@ -40,6 +39,7 @@ from pathlib import Path
 import numpy as np
 import optuna
 import scipy
+from machine import cpu_model
 from scipy.optimize import differential_evolution
 
 from optmatch.domain.bounds import (
@@ -449,17 +449,6 @@ def run_case(case: Case, workdir: Path) -> CaseResult:
     losses = [f"{r.method} by {r.margin_db - ours.margin_db:.3f} dB" for r in rows[1:4]
               if r.margin_db is not None and r.margin_db > (ours.margin_db or -np.inf) + TIE_DB]
     return CaseResult(case, study, rows, not losses, losses, dense_rl)
-
-
-def cpu_model() -> str:
-    try:
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    return line.split(":", 1)[1].strip()
-    except OSError:
-        pass
-    return platform.processor() or "unknown"
 
 
 def _fmt(x: float | None, spec: str) -> str:
