@@ -25,6 +25,7 @@ Connection = Literal["series", "shunt"]
 Part = Literal["r", "l", "c"]
 
 DEFAULT_CHUNK = 256
+FULL_RESCALE_EVERY = 6  # branches between per-point rescales of the wave state
 
 
 @dataclass(frozen=True)
@@ -254,6 +255,7 @@ def walk(
     v = np.broadcast_to(zl, (n, freq.size)).astype(complex)
     i = np.ones((n, freq.size), dtype=complex)
     k = np.ones((n, freq.size), dtype=complex)
+    branches = 0
     for stage, p in zip(stages, params, strict=True):
         if stage.kind == "line":
             z0, ch, sh = _line_terms(p, n, grid)
@@ -266,10 +268,14 @@ def walk(
         else:  # I' = I + V / Z
             v, i = v * bp, i * bp + v * bq
             k = k * bp
-        # keep magnitudes near one so long chains neither overflow nor underflow
-        scale = np.abs(v) + np.abs(i)
-        scale[scale == 0.0] = 1.0
-        v, i, k = v / scale, i / scale, k / scale
+        # Keep magnitudes near one so long chains neither overflow nor underflow.  Usually one
+        # real factor per candidate, taken at the first frequency (O(n)); every few branches a
+        # factor per point, since a branch's spread over the band (e.g. jωL) multiplies up.
+        branches += 1
+        sl = slice(None) if branches % FULL_RESCALE_EVERY == 0 else slice(0, 1)
+        scale = np.abs(v[:, sl]) + np.abs(i[:, sl])
+        inv = 1.0 / np.where(scale > 0.0, scale, 1.0)
+        v, i, k = v * inv, i * inv, k * inv
     p_load = np.broadcast_to(zl.real, (n, freq.size))
     return v, i, k, p_load
 
