@@ -73,7 +73,7 @@ def _complete_now(study, journal: Path) -> dict[int, list[float]]:
 def test_batch_killed_mid_study_resumes_without_losing_or_redoing_trials(tmp_path: Path) -> None:
     folder, out = tmp_path / "studies", tmp_path / "out"
     folder.mkdir()
-    study = load_study(write_study(folder, "long", trials=10))
+    study = load_study(write_study(folder, "long", trials=60))  # long enough that the kill lands mid-study
     journal = journal_path(out / "long")
     proc = subprocess.Popen([sys.executable, "-m", "optmatch", "batch", str(folder), "--out", str(out)],
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)

@@ -305,7 +305,7 @@ def test_best_design_table_lists_elements_load_outwards():
     reports = describe(problem, design)
     section = text.split("## Best design")[1].split("##")[0]
     rows = [ln for ln in section.splitlines() if ln.startswith("| ") and ln.split("|")[1].strip().isdigit()]
-    assert [int(r.split("|")[1]) for r in rows] == [r.index for r in reports]
+    assert [int(r.split("|")[1]) for r in rows] == [r.index + 1 for r in reports]  # numbered from 1, as the cut list
     # Pozar 4th ed., Example 5.2 (recalled from memory): 0.110 λ = 39.60°, stub 0.095 λ = 34.20°
     assert "39.60" in rows[0] and "34.20" in rows[1] and "short end" in rows[1]
 

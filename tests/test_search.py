@@ -119,18 +119,22 @@ search: {{trials: 6, seed: 4, population: 32, generations: 30}}
     assert best.margin_db > -10.0  # and the search did find a real match
 
 
-@pytest.mark.parametrize("seed", [0, 1, 2])
-def test_seeded_search_beats_unseeded_at_equal_budget(tmp_path, seed):
-    # A reactive (series RLC) load over a 2 % band with a tiny budget: one trial of one generation.
-    study = _study(tmp_path, f"""
+def test_seeded_search_beats_unseeded_at_equal_budget(tmp_path):
+    # A reactive (series RLC) load over a 2 % band with a tiny budget (one trial of one generation),
+    # over six random seeds: the closed-form seed never does worse and is far better on average.
+    gains = []
+    for seed in range(6):
+        study = _study(tmp_path, f"""
 load: {{series_rlc: {{r: 12, l: 40nH, c: 3pF}}}}
 mask: {{segments: [{{from: 495MHz, to: 505MHz, return_loss: 15}}]}}
 network: {{template: single_shunt_stub}}
 search: {{trials: 1, seed: {seed}, population: 8, generations: 1}}
 """)
-    seeded = _run(study, use_seeds=True).designs[0].margin_db
-    unseeded = _run(study, use_seeds=False).designs[0].margin_db
-    assert seeded > unseeded + 1.0
+        seeded = _run(study, use_seeds=True).designs[0].margin_db
+        unseeded = _run(study, use_seeds=False).designs[0].margin_db
+        assert seeded >= unseeded - 1e-6
+        gains.append(seeded - unseeded)
+    assert np.mean(gains) > 1.0
 
 
 def test_same_seed_same_result(tmp_path):

@@ -399,3 +399,15 @@ def test_all_problems_reported_together(tmp_path):
     for key in expected:
         assert any(line.startswith(f"{path}: {key}") for line in probs), (key, probs)
     assert len(probs) == len(expected)
+
+
+def test_tolerance_section(tmp_path):
+    good = write(tmp_path, "load: {impedance: 60-j80}\n" + MASK +
+                 "network: {template: single_shunt_stub}\ntolerance: {cut: 2mm, z0: 3%, vf: 1.5, samples: 200}\n")
+    spread = load_study(good).spread
+    assert (spread.cut_m, spread.z0_rel, spread.vf_rel, spread.samples) == (0.002, 0.03, 0.015, 200)
+    bad = write(tmp_path, "load: {impedance: 60-j80}\n" + MASK +
+                "network: {template: single_shunt_stub}\ntolerance: {cut: 2deg, z0: 150%}\n", "bad.yaml")
+    probs = problems_of(bad)
+    assert any("tolerance.cut" in p for p in probs)
+    assert any("tolerance.z0" in p and "100" in p for p in probs)

@@ -44,7 +44,7 @@ def print_designs(doc: dict) -> None:
     """Closing table of the best designs."""
     out = console()
     tab = table("rank", "verdict", "elements (load outwards)", "margin dB", "worst RL dB", "at MHz", "length λ",
-                title=f"{doc['study']}: best designs")
+                "yield", title=f"{doc['study']}: best designs")
     for d in doc["designs"]:
         parts = []
         for e in d["elements"]:
@@ -55,8 +55,10 @@ def print_designs(doc: dict) -> None:
                 parts.append(f"{label} {e['electrical_deg']:.1f}° {e['z0_ohm']:.0f}Ω")
         tab.add_row(str(d["rank"]), "PASS" if d["passes"] else "FAIL", " · ".join(parts),
                     f"{d['margin_db']:+.2f}", f"{d['worst_return_loss_db']:.2f}",
-                    f"{d['worst_freq_hz'] / 1e6:.2f}", f"{d['total_length_wl']:.3f}")
+                    f"{d['worst_freq_hz'] / 1e6:.2f}", f"{d['total_length_wl']:.3f}",
+                    f"{100 * d['robustness']['yield_frac']:.0f}%" if d.get("robustness") else "–")
     out.print(tab)
+    out.print("yield: share of simulated builds (cut, velocity-factor and Z0 spreads) that still meet the mask")
     for w in doc.get("warnings", []):
         out.print(f"[bold red]warning:[/] {w}")
 

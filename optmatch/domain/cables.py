@@ -61,7 +61,8 @@ class Cable:
         """The line medium: Z0, velocity factor and loss in Np/m (kc per √Hz, kd per Hz)."""
         kc, kd = self.loss_coefficients
         scale = NEPER_PER_DB / 100.0
-        return Medium(self.z0_ohm, self.vf, kc * scale, kd * scale, self.name)
+        return Medium(self.z0_ohm, self.vf, kc * scale, kd * scale, self.name,
+                      z0_tol_rel=self.z0_tolerance_ohm / self.z0_ohm, vf_tol_rel=self.vf_tolerance / self.vf)
 
 
 def physical_length_m(delay_s: float, vf: float) -> float:

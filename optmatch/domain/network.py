@@ -66,6 +66,8 @@ class Medium:
     kd: float = 0.0
     name: str = ""
     printed: Substrate | None = None  # a microstrip: its VF then follows the Z0 chosen
+    z0_tol_rel: float = 0.0  # ± fraction, for the tolerance Monte Carlo
+    vf_tol_rel: float = 0.0
 
 
 @dataclass(frozen=True)

@@ -201,6 +201,28 @@ def _describe_load(load: object) -> str:
     return "not described" if load is None else str(load)
 
 
+def _robustness_markdown(rob: Mapping | None, tol: Mapping) -> list[str]:
+    """The yield and sensitivity section for the best design (empty without a Monte Carlo)."""
+    if not rob:
+        return []
+    spreads = [f"cut ±{float(tol.get('cut_m', 0.0)) * 1e3:g} mm"]
+    for key, label in (("z0_rel", "Z0"), ("vf_rel", "velocity factor"), ("parts_rel", "lumped values")):
+        val = tol.get(key)
+        spreads.append(f"{label} ±{float(val) * 100:g} %" if val is not None else f"{label}: the cable's own tolerance")
+    lines = ["## Robustness of the best design", "",
+             f"Of {rob['samples']} simulated builds ({', '.join(spreads)}; uniform spreads), "
+             f"**{100.0 * float(rob['yield_frac']):.0f} %** meet the mask. Margin: median "
+             f"{float(rob['margin_p50_db']):+.2f} dB, 5th percentile {float(rob['margin_p5_db']):+.2f} dB, "
+             f"worst {float(rob['margin_min_db']):+.2f} dB. A low yield says: trim the open stubs while "
+             "measuring.", ""]
+    rows = []
+    for sens in rob.get("sensitivities", []):
+        rows.append([str(sens["index"] + 1), _num(sens.get("db_per_mm"), "+.3f"), _num(sens.get("db_per_pct_vf"), "+.3f"),
+                     _num(sens.get("db_per_pct_z0"), "+.3f"), _num(sens.get("db_per_pct_value"), "+.3f")])
+    lines += _table(["#", "margin dB per mm longer", "per % VF", "per % Z0", "per % value"], rows, "rrrrr")
+    return [*lines, ""]
+
+
 def summary_markdown(doc: Mapping) -> str:
     """The readable report of one study as Markdown.
 
@@ -277,7 +299,7 @@ def summary_markdown(doc: Mapping) -> str:
         for e in designs[0].get("elements", []):
             mm = e.get("physical_m")
             rows.append([
-                str(e["index"]), _element_name(e), e.get("medium") or "–", _num(e.get("z0_ohm"), ".4g"),
+                str(e["index"] + 1), _element_name(e), e.get("medium") or "–", _num(e.get("z0_ohm"), ".4g"),
                 _num(e.get("electrical_deg"), ".2f"), _num(e.get("wavelengths"), ".4f"),
                 "–" if mm is None else f"{mm * 1e3:.1f}", _element_value(e),
             ])
@@ -285,6 +307,7 @@ def summary_markdown(doc: Mapping) -> str:
                          "value"], rows, "rllrrrrr")
         lines += ["", "Electrical lengths include connector and adapter allowances; the cable to cut "
                   "does not.", ""]
+        lines += _robustness_markdown(designs[0].get("robustness"), doc.get("tolerance") or {})
 
     plots = doc.get("plots")
     if plots is None:

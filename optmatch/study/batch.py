@@ -29,7 +29,7 @@ from optmatch.errors import OptmatchError
 from optmatch.io.atomic import write_json_atomic
 from optmatch.outputs.report import write_report
 from optmatch.study.loader import Study, StudyFileError, load_study
-from optmatch.study.results import results_dir, summary_document, write_results
+from optmatch.study.results import results_dir, write_results
 from optmatch.study.search import enqueue_seeds, open_study, run_search, study_seeds
 from optmatch.study.storage import fail_stale, is_url, live_running, open_database, open_storage
 
@@ -254,8 +254,7 @@ class Batch:
             outcome = run_search(study, storage)
         elapsed = time.monotonic() - start
         outcome = replace(outcome, elapsed_s=elapsed)
-        write_results(study, outcome, self.out_root)
-        doc = summary_document(study, outcome, [])
+        _, doc = write_results(study, outcome, self.out_root)
         entry.status = "done"
         entry.verdict = doc["verdict"]
         entry.best_margin_db = doc["best_margin_db"]

@@ -29,6 +29,7 @@ from optmatch.domain.mask import Grid, Segment, build_grid
 from optmatch.domain.network import Bound, ElementSpec, LengthBasis, Medium, NetworkSpec
 from optmatch.domain.problem import Problem
 from optmatch.domain.templates import STEPPED_Z0_OHM, LengthBound, build_template
+from optmatch.domain.tolerance import Spread
 from optmatch.errors import OptmatchError
 from optmatch.io.touchstone import read_one_port
 from optmatch.study.schema import (
@@ -47,6 +48,7 @@ from optmatch.study.schema import (
     SIValue,
     StubModel,
     StudyModel,
+    ToleranceModel,
     Z0Range,
 )
 from optmatch.study.shelf import ShelfContext, shelf_context, shelf_element, uses_shelf
@@ -93,6 +95,7 @@ class Study:
     description: str = ""
     cables: dict[str, Cable] = field(default_factory=dict)  # catalog in force (shipped + the study's own)
     drive_w: float | None = None  # available source power for the power check (W)
+    spread: Spread = Spread()  # build tolerances for the yield Monte Carlo
 
 
 # ---------------------------------------------------------------- YAML
@@ -402,6 +405,11 @@ def _sections(raw: dict, exc: ValidationError) -> dict[str, Any]:
     return got
 
 
+def _spread(tol: ToleranceModel, seed: int) -> Spread:
+    return Spread(cut_m=tol.cut.value, z0_rel=tol.z0, vf_rel=tol.vf, parts_rel=tol.parts,
+                  samples=tol.samples, seed=seed)
+
+
 def load_study(path: str | os.PathLike) -> Study:
     """Read, validate and resolve a study file; raises :class:`StudyFileError` listing every problem."""
     p = Path(path)
@@ -446,7 +454,8 @@ def load_study(path: str | os.PathLike) -> Study:
                       network=NetworkSpec(elements, shelf.stock_tuple()), f_ref=f_ref)
     return Study(path=p, problem=problem, search=search, raw=raw, digest=_digest(raw, ts_bytes),
                  description=model.description, cables=shelf.catalog,
-                 drive_w=model.drive.power if model.drive is not None else None)
+                 drive_w=model.drive.power if model.drive is not None else None,
+                 spread=_spread(model.tolerance, search.seed))
 
 
 def check_study(path: str | os.PathLike) -> list[str]:

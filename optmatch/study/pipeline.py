@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from optmatch.study.loader import Study
-from optmatch.study.results import results_dir, summary_document, write_results
+from optmatch.study.results import results_dir, write_results
 from optmatch.study.search import ProgressFn, run_search
 from optmatch.study.storage import open_storage
 
@@ -17,5 +17,4 @@ def run_study(study: Study, out_root: Path, storage_url: str | None = None,
     storage = open_storage(storage_url, folder)
     outcome = run_search(study, storage, progress=progress_fn)
     warnings: list[str] = []
-    folder = write_results(study, outcome, out_root, warnings)
-    return folder, summary_document(study, outcome, warnings)
+    return write_results(study, outcome, out_root, warnings)

@@ -14,6 +14,7 @@ import numpy as np
 
 from optmatch import __version__
 from optmatch.domain.design import Design, describe, performance
+from optmatch.domain.tolerance import monte_carlo
 from optmatch.io.atomic import write_json_atomic, write_text_atomic
 from optmatch.outputs.cutlist import cut_list_csv, cut_list_markdown
 from optmatch.outputs.network_export import export_touchstone
@@ -52,6 +53,7 @@ def design_doc(study: Study, design: Design, rank: int) -> dict:
         "choice": {"medium": list(design.choice.medium), "short": list(design.choice.short)},
         "u": list(design.u),
         "elements": elements,
+        "robustness": monte_carlo(study.problem, design, study.spread).as_dict(),
     }
 
 
@@ -86,6 +88,7 @@ def summary_document(study: Study, outcome: SearchOutcome, warnings: list[str]) 
             "settings": dict(study.search.__dict__),
         },
         "warnings": warnings,
+        "tolerance": dict(study.spread.__dict__),
         "cut_list": build,
     }
 
@@ -95,8 +98,8 @@ def _sha256(path: Path) -> str:
 
 
 def write_results(study: Study, outcome: SearchOutcome, out_root: Path,
-                  warnings: list[str] | None = None) -> Path:
-    """Write the whole results folder; returns its path."""
+                  warnings: list[str] | None = None) -> tuple[Path, dict]:
+    """Write the whole results folder; returns its path and the summary document written."""
     warnings = list(warnings or [])
     folder = results_dir(study, out_root)
     folder.mkdir(parents=True, exist_ok=True)
@@ -121,4 +124,4 @@ def write_results(study: Study, outcome: SearchOutcome, out_root: Path,
     files.append(write_text_atomic(folder / "summary.md", summary_markdown(doc)))
     doc["files"] = {p.name: _sha256(p) for p in files}
     write_json_atomic(folder / "summary.json", doc)
-    return folder
+    return folder, doc

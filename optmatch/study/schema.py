@@ -363,6 +363,36 @@ class ShelfModel(_Model):
         return self
 
 
+def _percent(v: Any) -> float:
+    """A tolerance as a fraction from ``2%``, ``2 %`` or a plain number of percent (``2``)."""
+    if isinstance(v, bool):
+        raise ValueError(f"expected a percentage, got {v!r}")
+    text = str(v).strip()
+    if text.endswith("%"):
+        text = text[:-1].strip()
+    try:
+        x = float(text)
+    except ValueError:
+        raise ValueError(f"{v!r} is not a percentage (write e.g. 2%)") from None
+    if not (0.0 <= x < 100.0):
+        raise ValueError(f"must lie in [0, 100) %, got {v!r}")
+    return x / 100.0
+
+
+Percent = Annotated[float, PlainValidator(_percent)]  # fraction
+
+
+class ToleranceModel(_Model):
+    """``tolerance``: build spreads for the yield Monte Carlo.  ``cut`` ± on every cable section;
+    ``z0`` and ``vf`` ± (default: each cable's catalog tolerance); ``parts`` ± on lumped values."""
+
+    cut: PhysicalLength = Length("physical", 1e-3)
+    z0: Percent | None = None
+    vf: Percent | None = None
+    parts: Percent = 0.0
+    samples: Count = 500
+
+
 class DriveModel(_Model):
     """``drive``: the power the source makes available (W) into the system impedance."""
 
@@ -648,9 +678,10 @@ class StudyModel(_Model):
     search: SearchModel = SearchModel()
     shelf: ShelfModel | None = None
     drive: DriveModel | None = None
+    tolerance: ToleranceModel = ToleranceModel()
 
 
 SECTION_MODELS: dict[str, type[BaseModel]] = {
     "load": LoadModel, "mask": MaskModel, "network": NetworkModel, "search": SearchModel,
-    "shelf": ShelfModel, "drive": DriveModel,
+    "shelf": ShelfModel, "drive": DriveModel, "tolerance": ToleranceModel,
 }

@@ -19,6 +19,8 @@ exactly as it was.
 
 from __future__ import annotations
 
+import copy
+import datetime
 import json
 import os
 import socket
@@ -137,19 +139,29 @@ class RetryStaleTrial:
 
 
 class _RecordsOwner:
-    """Writes the owner record as soon as a trial starts running here, before any heartbeat thread,
-    so a worker killed in a trial's first instant is still recognised."""
+    """Writes the owner record no later than the trial starts running here, so that a worker
+    killed at any instant leaves no running trial without an owner: a new trial is created with
+    its owner in the same journal record, and a queued trial gets the record just before it is
+    claimed (a record on a trial still waiting is harmless; whoever claims it writes their own)."""
 
     def create_new_trial(self, study_id: int, template_trial: FrozenTrial | None = None) -> int:
-        trial_id = super().create_new_trial(study_id, template_trial)  # type: ignore[misc]
-        if template_trial is None or template_trial.state == TrialState.RUNNING:
-            self.record_owner(trial_id)
-        return trial_id
+        if template_trial is None:
+            now = datetime.datetime.now(tz=datetime.timezone.utc)
+            template_trial = FrozenTrial(
+                number=-1, state=TrialState.RUNNING, value=None, datetime_start=now, datetime_complete=None,
+                params={}, distributions={}, user_attrs={}, system_attrs={OWNER_KEY: owner_record()},
+                intermediate_values={}, trial_id=-1)
+        elif template_trial.state == TrialState.RUNNING and OWNER_KEY not in template_trial.system_attrs:
+            template_trial = copy.copy(template_trial)
+            template_trial.system_attrs = {**template_trial.system_attrs, OWNER_KEY: owner_record()}
+        return super().create_new_trial(study_id, template_trial)  # type: ignore[misc]
 
     def set_trial_state_values(self, trial_id: int, state: TrialState, values: Any = None) -> bool:
+        if state == TrialState.RUNNING:
+            self.record_owner(trial_id)
         taken = super().set_trial_state_values(trial_id, state, values)  # type: ignore[misc]
         if taken and state == TrialState.RUNNING:
-            self.record_owner(trial_id)
+            self.record_owner(trial_id)  # again: another claimant may have written in between
         return taken
 
     def record_owner(self, trial_id: int) -> None:
