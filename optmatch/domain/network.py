@@ -9,8 +9,7 @@ from __future__ import annotations
 
 import itertools
 import math
-from collections.abc import Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from typing import Literal
 
 import numpy as np
@@ -310,13 +309,3 @@ class NetworkSpec:
             if tau is not None:
                 total = total + tau + el.extra_delay
         return total
-
-
-def with_elements(spec: NetworkSpec, elements: Sequence[ElementSpec]) -> NetworkSpec:
-    """A copy of ``spec`` with other elements (recomputes the free parameters)."""
-    return NetworkSpec(tuple(elements), spec.stock)
-
-
-def fix_element(el: ElementSpec, **changes) -> ElementSpec:
-    """A copy of one element with some fields changed."""
-    return replace(el, **changes)

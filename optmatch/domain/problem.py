@@ -36,29 +36,29 @@ class Problem:
         params = self.network.engine_params(np.atleast_2d(u), choice)
         return evaluate(self.network.stages, params, self.grid.freq, self.zload, self.z_sys)
 
+    def _reduce(self, params: list[dict], per_chunk) -> np.ndarray:
+        """Evaluate engine ``params`` on the grid, reducing each chunk with ``per_chunk(gamma_sq, delivered)``
+        (``delivered`` is None unless the mask limits network loss)."""
+        need_power = self.grid.has_loss_limit
+        return evaluate_reduced(self.network.stages, params, self.grid.freq, self.zload, self.z_sys,
+                                reducer=lambda r: per_chunk(r.gamma_sq, r.delivered if need_power else None))
+
+    def margins_of(self, params: list[dict]) -> np.ndarray:
+        """Margin (dB) per candidate of engine parameter dicts (e.g. perturbed builds)."""
+        return self._reduce(params, lambda g2, dlv: margin_db(g2, dlv, self.grid))
+
     def margins(self, u: np.ndarray, choice: Choice) -> np.ndarray:
         """Margin (dB) per design: worst case over the grid, negative when the mask is failed."""
-        u = np.atleast_2d(u)
-        params = self.network.engine_params(u, choice)
-        need_power = self.grid.has_loss_limit
-
-        def red(r: Response) -> np.ndarray:
-            return margin_db(r.gamma_sq, r.delivered if need_power else None, self.grid)
-
-        return evaluate_reduced(self.network.stages, params, self.grid.freq, self.zload, self.z_sys, reducer=red)
+        return self.margins_of(self.network.engine_params(np.atleast_2d(u), choice))
 
     def shortfalls_db(self, u: np.ndarray, choice: Choice) -> np.ndarray:
         """Per grid point, requirement minus achievement in dB (n, F); margin = −max over F."""
-        u = np.atleast_2d(u)
-        params = self.network.engine_params(u, choice)
-        need_power = self.grid.has_loss_limit
 
-        def red(r: Response) -> np.ndarray:
-            terms = margin_terms(r.gamma_sq, r.delivered if need_power else None, self.grid)
+        def per_point(g2: np.ndarray, dlv: np.ndarray | None) -> np.ndarray:
             with np.errstate(divide="ignore"):
-                return 10.0 * np.log10(np.maximum(terms, 1e-300))
+                return 10.0 * np.log10(np.maximum(margin_terms(g2, dlv, self.grid), 1e-300))
 
-        return evaluate_reduced(self.network.stages, params, self.grid.freq, self.zload, self.z_sys, reducer=red)
+        return self._reduce(self.network.engine_params(np.atleast_2d(u), choice), per_point)
 
     def length_wl(self, u: np.ndarray, choice: Choice) -> np.ndarray:
         """Total line and stub length in wavelengths at ``f_ref`` per design."""

@@ -14,7 +14,6 @@ import numpy as np
 
 from optmatch.domain.design import Design
 from optmatch.domain.problem import Problem
-from optmatch.engine import evaluate_reduced
 from optmatch.units import C0
 
 DEFAULT_CUT_M = 1e-3  # ±1 mm: a careful hand cut against a rule (common practice, no source)
@@ -106,16 +105,6 @@ def perturbed_params(problem: Problem, design: Design, cut_m: np.ndarray, vf_rel
     return out
 
 
-def _margins(problem: Problem, params: list[dict]) -> np.ndarray:
-    from optmatch.domain.mask import margin_db
-
-    need_power = problem.grid.has_loss_limit
-    return evaluate_reduced(
-        problem.network.stages, params, problem.grid.freq, problem.zload, problem.z_sys,
-        reducer=lambda r: margin_db(r.gamma_sq, r.delivered if need_power else None, problem.grid),
-    )
-
-
 def sensitivities(problem: Problem, design: Design) -> tuple[Sensitivity, ...]:
     """Central differences of the margin: ±0.5 mm cut, ±0.5 % VF, Z0 and lumped value, per element."""
     m = len(problem.network.elements)
@@ -130,7 +119,7 @@ def sensitivities(problem: Problem, design: Design) -> tuple[Sensitivity, ...]:
     for r, (i, q, h) in enumerate(rows):
         errs[q, 2 * r, i] = h
         errs[q, 2 * r + 1, i] = -h
-    margins = _margins(problem, perturbed_params(problem, design, errs[0], errs[1], errs[2], errs[3]))
+    margins = problem.margins_of(perturbed_params(problem, design, errs[0], errs[1], errs[2], errs[3]))
     out: dict[int, dict[str, float]] = {}
     scale = {0: 1e-3, 1: 0.01, 2: 0.01, 3: 0.01}  # per mm, per %
     names = {0: "db_per_mm", 1: "db_per_pct_vf", 2: "db_per_pct_z0", 3: "db_per_pct_value"}
@@ -157,7 +146,7 @@ def monte_carlo(problem: Problem, design: Design, spread: Spread) -> Robustness:
     vf = draw(vf_tol)
     z0 = draw(z0_tol)
     value = draw(np.where(line_like, 0.0, spread.parts_rel))
-    margins = _margins(problem, perturbed_params(problem, design, cut, vf, z0, value))
+    margins = problem.margins_of(perturbed_params(problem, design, cut, vf, z0, value))
     return Robustness(
         yield_frac=float(np.mean(margins >= 0.0)),
         samples=n,

@@ -108,6 +108,16 @@ def _broken(x: np.ndarray, y: np.ndarray, breaks: np.ndarray) -> tuple[np.ndarra
     return np.insert(x, breaks + 1, np.nan), np.insert(y, breaks + 1, np.nan)
 
 
+def _finish_xy(fig, ax, path: str | os.PathLike, xlabel: str, ylabel: str, title: str, legend_loc: str) -> Path:
+    """Labels, title and legend in the house style of the x–y plots, then an atomic save."""
+    ax.set_xlabel(xlabel, color=TEXT_INK)
+    ax.set_ylabel(ylabel, color=TEXT_INK)
+    ax.set_title(title, color=TEXT_INK, fontsize=11, loc="left")
+    ax.legend(loc=legend_loc, fontsize=8, frameon=True, framealpha=0.9, edgecolor="#d0d4d8")
+    fig.tight_layout()
+    return save_figure_atomic(fig, path)
+
+
 def plot_return_loss(
     perfs: Sequence[tuple[str, Performance]],
     grid: Grid,
@@ -168,12 +178,8 @@ def plot_return_loss(
     ax.set_ylim(0.0, y_top)
     pad = 0.03 * (float(grid.freq.max() - grid.freq.min()) / 1e6 or 1.0)
     ax.set_xlim(grid.freq.min() / 1e6 - pad, grid.freq.max() / 1e6 + pad)
-    ax.set_xlabel("frequency (MHz)", color=TEXT_INK)
-    ax.set_ylabel("return loss (dB, higher is better)", color=TEXT_INK)
-    ax.set_title("Return loss of the ranked designs against the mask", color=TEXT_INK, fontsize=11, loc="left")
-    ax.legend(loc="upper right", fontsize=8, frameon=True, framealpha=0.9, edgecolor="#d0d4d8")
-    fig.tight_layout()
-    return save_figure_atomic(fig, path)
+    return _finish_xy(fig, ax, path, "frequency (MHz)", "return loss (dB, higher is better)",
+                      "Return loss of the ranked designs against the mask", "upper right")
 
 
 def _smith_grid(ax) -> None:
@@ -266,9 +272,5 @@ def plot_pareto(
         ax.plot(f[:, 1], f[:, 0], color=DESIGN_COLOURS[0], linewidth=1.6, zorder=3)
         ax.scatter(f[:, 1], f[:, 0], s=36, color=DESIGN_COLOURS[0], zorder=4, label="Pareto front")
     ax.axhline(0.0, color=REQUIREMENT, linewidth=1.2, linestyle="--", label="mask met above this line")
-    ax.set_xlabel("total line length (wavelengths at the reference frequency)", color=TEXT_INK)
-    ax.set_ylabel("margin against the mask (dB)", color=TEXT_INK)
-    ax.set_title("Margin against size", color=TEXT_INK, fontsize=11, loc="left")
-    ax.legend(loc="lower right", fontsize=8, frameon=True, framealpha=0.9, edgecolor="#d0d4d8")
-    fig.tight_layout()
-    return save_figure_atomic(fig, path)
+    return _finish_xy(fig, ax, path, "total line length (wavelengths at the reference frequency)",
+                      "margin against the mask (dB)", "Margin against size", "lower right")

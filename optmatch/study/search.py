@@ -238,13 +238,13 @@ def run_search(
     objective = make_objective(problem, settings, seeds, use_seeds)
     stopped = {"early": False}
 
-    def best_margin() -> float | None:
+    def tally() -> tuple[int, float | None]:
+        """Complete trials in the storage (every worker's) and the best margin among them."""
         done = _complete(ost)
-        return max((t.values[0] for t in done), default=None)
+        return len(done), max((t.values[0] for t in done), default=None)
 
     def callback(st: optuna.Study, trial: optuna.trial.FrozenTrial) -> None:
-        n_done = len(_complete(st))
-        best = best_margin()
+        n_done, best = tally()
         if progress is not None:
             progress(n_done, settings.trials, best)
         if n_done >= settings.trials:
@@ -253,9 +253,10 @@ def run_search(
             stopped["early"] = True
             st.stop()
 
-    remaining = settings.trials - len(_complete(ost))
+    n_done, best = tally()
+    remaining = settings.trials - n_done
     if progress is not None:
-        progress(len(_complete(ost)), settings.trials, best_margin())
+        progress(n_done, settings.trials, best)
     if remaining > 0:
         ost.optimize(objective, n_trials=remaining, timeout=settings.time_s, callbacks=[callback],
                      catch=())
