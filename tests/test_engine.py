@@ -130,7 +130,7 @@ def _random_network(rng: np.random.Generator, n_elem: int, lossless: bool = Fals
         if kind == "lumped":
             part = parts[rng.integers(len(parts))]
             conn = ("series", "shunt")[rng.integers(2)]
-            value = {"r": rng.uniform(1, 300), "l": rng.uniform(1e-9, 100e-9), "c": rng.uniform(0.5e-12, 30e-12)}[part]
+            value = {"r": rng.uniform(1, 300), "l": rng.uniform(1e-9, 120e-9), "c": rng.uniform(0.5e-12, 30e-12)}[part]
             stages.append(Stage("lumped", conn, part))
             params.append({"value": value})
             continue
@@ -317,13 +317,15 @@ def test_quarter_wave_stub_extremes_stay_finite(short_end):
     assert res.delivered[0, 1] == pytest.approx(0.0, abs=1e-12)  # identity: nothing reaches the load
 
 
-def test_series_rl_load_at_160_mhz():
-    # ideal series R–L of 100 Ω and 100 nH is about 100 + j100.5 Ω at 160 MHz (common practice, no source)
+def test_series_inductor_on_resistor_by_identity():
+    # Our own values (no source): 33 Ω with a series 47 nH at 275 MHz.  Identity: the inductor adds
+    # X = 2πfL in series and leaves R unchanged.
+    r_ohm, l_h, f_hz = 33.0, 47e-9, 275e6
     stages = [Stage("lumped", "series", "l"), LINE]
-    res = evaluate(stages, [{"value": 100e-9}, {"z0": 50.0, "delay": 0.0}], np.array([160e6]), 100.0)
+    res = evaluate(stages, [{"value": l_h}, {"z0": 50.0, "delay": 0.0}], np.array([f_hz]), r_ohm)
     z = res.zin[0, 0]
-    assert z.real == pytest.approx(100.0, abs=1e-9)
-    assert z.imag == pytest.approx(100.5, abs=0.05)
+    assert z.real == pytest.approx(r_ohm, abs=1e-9)  # identity: R unchanged
+    assert z.imag == pytest.approx(2 * np.pi * f_hz * l_h, rel=1e-12)  # identity: X = 2πfL (≈ 81.2 Ω)
 
 
 @pytest.mark.parametrize("z_s", [50.0, 75.0, 300.0])
@@ -342,7 +344,7 @@ def test_long_lumped_ladder_stays_finite_and_matches_skrf():
     stages, params = [], []
     for _ in range(120):
         stages += [Stage("lumped", "series", "l"), Stage("lumped", "shunt", "c")]
-        params += [{"value": 100e-9}, {"value": 50e-12}]
+        params += [{"value": 82e-9}, {"value": 39e-12}]
     got = evaluate(stages, params, freq, 50.0 + 10j).gamma[0]
     assert np.all(np.isfinite(got))
     ref = skrf_gamma(stages, params, freq, 50.0 + 10j)

@@ -21,11 +21,16 @@ FREQ = np.linspace(50e6, 500e6, 46)
 # ---------------------------------------------------------------- RLC models
 
 
-def test_series_rl_at_160_mhz():
-    z = series_rlc(np.array([160e6]), r_ohm=100.0, l_h=100e-9)
-    # an ideal series R–L of 100 Ω and 100 nH is about 100 + j100.5 Ω at 160 MHz (common practice, no source)
-    assert z[0].real == pytest.approx(100.0, abs=1e-12)
-    assert z[0].imag == pytest.approx(100.5, abs=0.05)
+def test_series_rl_by_identity_and_skrf():
+    # Our own values (no source): R = 33 Ω, L = 47 nH at 275 MHz.
+    r_ohm, l_h, f_hz = 33.0, 47e-9, 275e6
+    z = series_rlc(np.array([f_hz]), r_ohm=r_ohm, l_h=l_h)
+    assert z[0].real == pytest.approx(r_ohm, abs=1e-12)  # identity: R unchanged
+    assert z[0].imag == pytest.approx(2 * np.pi * f_hz * l_h, rel=1e-12)  # identity: X = 2πfL
+    # scikit-rf's lumped inductor in series, terminated in the resistor, as the independent reference
+    media = skrf.media.DefinedGammaZ0(frequency=skrf.Frequency.from_f([f_hz], unit="hz"), z0=50.0)
+    ref = (media.inductor(l_h) ** media.resistor(r_ohm) ** media.short()).z[0, 0, 0]
+    assert z[0] == pytest.approx(ref, rel=1e-9)
 
 
 def test_series_rlc_hand_formula_and_resonance():

@@ -66,7 +66,7 @@ def mixed_problem() -> tuple[Problem, Design]:
         ElementSpec("line", length=Bound(0.05, 0.6), length_basis="physical", media=(coax,), extra_delay=40e-12),
         ElementSpec("series_stub", length=Bound(0.0, 0.4 / F_REF), end="either", media=(Medium(62.0),)),
         ElementSpec("lumped", connection="shunt", part="c", value=Bound(0.5e-12, 20e-12, log=True)),
-        ElementSpec("lumped", connection="series", part="l", value=Bound(1e-9, 100e-9, log=True)),
+        ElementSpec("lumped", connection="series", part="l", value=Bound(1e-9, 120e-9, log=True)),
         ElementSpec("shunt_stub", length=Bound(0.0, 0.5 / F_REF), end="open", media=(Medium(50.0, kc=1e-6),)),
     ]
     segs = [Segment(400e6, 420e6, 10.0, points=21), Segment(440e6, 470e6, 14.0, points=31)]

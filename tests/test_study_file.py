@@ -71,16 +71,16 @@ def test_impedance_load_is_constant_on_the_grid(tmp_path):
     assert study.problem.grid.freq.size == 41  # default points per segment (mask.DEFAULT_POINTS)
 
 
-def test_series_rl_load_matches_trade_value(tmp_path):
+def test_series_rl_load_by_identity(tmp_path):
+    # Our own values (no source): 33 Ω in series with 47 nH, at 275 MHz.
     study = load_study(write(tmp_path, """
-        load: {series_rlc: {r: 100, l: 100nH}}
-        mask: {segments: [{from: 160MHz, to: 160MHz, return_loss: 10}]}
+        load: {series_rlc: {r: 33, l: 47nH}}
+        mask: {segments: [{from: 275MHz, to: 275MHz, return_loss: 10}]}
         network: {template: single_series_stub}
         """))
     z = study.problem.zload[0]
-    # Fact of the trade (common practice, no source): 100 Ω + 100 nH ≈ 100 + j100.5 Ω at 160 MHz.
-    assert z.real == pytest.approx(100.0)
-    assert z.imag == pytest.approx(100.5, abs=0.1)
+    assert z.real == pytest.approx(33.0)  # identity: R unchanged
+    assert z.imag == pytest.approx(2 * math.pi * 275e6 * 47e-9, rel=1e-12)  # identity: X = 2πfL
 
 
 def test_parallel_rlc_load_is_pure_r_at_resonance(tmp_path):
