@@ -24,8 +24,8 @@ import threading
 import time
 from pathlib import Path
 
-from optmatch.study.batch import run_batch
-from optmatch.study.storage import WatchedJournalStorage
+from optmatch.running.batch import run_batch
+from optmatch.running.storage import WatchedJournalStorage
 
 LOADS_OHM = ["60-80j", "25+30j", "120-40j", "15-10j", "80+60j", "35-55j", "150+20j", "40+90j"]
 

@@ -52,8 +52,8 @@ from optmatch.domain.bounds import (
 from optmatch.domain.mask import build_grid
 from optmatch.domain.network import Choice
 from optmatch.domain.problem import Problem
-from optmatch.study.loader import Study, load_study
-from optmatch.study.search import run_search, study_seeds
+from optmatch.running.search import run_search, study_seeds
+from optmatch.studyfile.loader import Study, load_study
 
 REPO = Path(__file__).resolve().parent.parent
 TIE_DB = 0.01  # "at least as good" tolerance, dB

@@ -19,11 +19,11 @@ _EXPORTS = {
     "quarter_wave": "optmatch.domain.closed_form",
     "series_stub": "optmatch.domain.closed_form",
     "shunt_stub": "optmatch.domain.closed_form",
-    "Study": "optmatch.study.loader",
-    "StudyFileError": "optmatch.study.loader",
-    "check_study": "optmatch.study.loader",
-    "load_study": "optmatch.study.loader",
-    "run_study": "optmatch.study.pipeline",
+    "Study": "optmatch.studyfile.loader",
+    "StudyFileError": "optmatch.studyfile.loader",
+    "check_study": "optmatch.studyfile.loader",
+    "load_study": "optmatch.studyfile.loader",
+    "run_study": "optmatch.running.pipeline",
 }
 
 __all__ = sorted(_EXPORTS)

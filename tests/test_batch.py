@@ -18,9 +18,9 @@ from pathlib import Path
 import optuna
 from test_storage import write_study
 
-from optmatch.study.loader import load_study
-from optmatch.study.search import open_study
-from optmatch.study.storage import journal_path, open_journal
+from optmatch.running.search import open_study
+from optmatch.running.storage import journal_path, open_journal
+from optmatch.studyfile.loader import load_study
 
 COMPLETE = optuna.trial.TrialState.COMPLETE
 KILL_DEADLINE_S = 240.0

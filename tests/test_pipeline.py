@@ -14,8 +14,8 @@ import skrf
 from optmatch.cli.main import main
 from optmatch.domain.design import Design
 from optmatch.domain.network import Choice
-from optmatch.study.loader import load_study
-from optmatch.study.pipeline import run_study
+from optmatch.running.pipeline import run_study
+from optmatch.studyfile.loader import load_study
 
 STUDY = """
 name: tiny

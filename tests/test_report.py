@@ -22,7 +22,7 @@ from test_storage import write_study
 from optmatch.cli.main import main
 from optmatch.io.atomic import write_json_atomic
 from optmatch.outputs.report import write_report
-from optmatch.study.batch import run_batch
+from optmatch.running.batch import run_batch
 
 CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                   "--disable-background-networking", "--disable-component-update", "--disable-sync"]

@@ -16,8 +16,8 @@ from optmatch.domain.bounds import (
 )
 from optmatch.domain.mask import margin_db
 from optmatch.engine import Stage, evaluate
-from optmatch.study.loader import load_study
-from optmatch.study.search import run_search
+from optmatch.running.search import run_search
+from optmatch.studyfile.loader import load_study
 
 
 def _study(tmp_path: Path, text: str):

@@ -16,9 +16,9 @@ from optmatch.domain.design import describe
 from optmatch.domain.microstrip import Substrate, printed_line
 from optmatch.domain.network import Bound, ElementSpec, Medium, NetworkSpec
 from optmatch.engine import evaluate
-from optmatch.study.build import build_view
-from optmatch.study.loader import StudyFileError, load_study
-from optmatch.study.search import run_search
+from optmatch.running.build import build_view
+from optmatch.running.search import run_search
+from optmatch.studyfile.loader import StudyFileError, load_study
 from optmatch.units import C0
 
 F0 = 435e6

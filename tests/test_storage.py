@@ -21,16 +21,16 @@ import optuna
 import pytest
 
 from optmatch.cli.main import main
-from optmatch.study.batch import prepare
-from optmatch.study.loader import load_study
-from optmatch.study.search import open_study, run_search
-from optmatch.study.storage import (
+from optmatch.running.batch import prepare
+from optmatch.running.search import open_study, run_search
+from optmatch.running.storage import (
     OWNER_KEY,
     StorageError,
     open_journal,
     open_storage,
     trial_is_stale,
 )
+from optmatch.studyfile.loader import load_study
 
 COMPLETE = optuna.trial.TrialState.COMPLETE
 
@@ -131,9 +131,9 @@ def test_two_workers_share_postgresql(tmp_path: Path) -> None:
 
 DIE_IN_TRIAL = """
 import os, sys
-import optmatch.study.search as search
-from optmatch.study.loader import load_study
-from optmatch.study.storage import open_journal
+import optmatch.running.search as search
+from optmatch.studyfile.loader import load_study
+from optmatch.running.storage import open_journal
 
 def die(*args, **kwargs):
     os._exit(0)  # the worker vanishes mid-trial, as under SIGKILL: no clean-up runs

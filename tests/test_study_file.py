@@ -16,7 +16,7 @@ import pytest
 import skrf
 
 from optmatch.domain.templates import build_template
-from optmatch.study.loader import StudyFileError, check_study, load_study
+from optmatch.studyfile.loader import StudyFileError, check_study, load_study
 from optmatch.units import C0
 
 DATA = Path(__file__).parent / "data"

@@ -56,7 +56,7 @@ def _quiet_optuna() -> None:
 
 
 def run_batch_command(args: argparse.Namespace) -> int:
-    from optmatch.study.batch import BatchListener, StudyEntry, run_batch
+    from optmatch.running.batch import BatchListener, StudyEntry, run_batch
 
     _quiet_optuna()
     err = console(stderr=True)
@@ -133,7 +133,7 @@ def _closing_table(entries: list, out: Path) -> None:
 
 
 def run_worker_command(args: argparse.Namespace) -> int:
-    from optmatch.study.worker import join_files, stop_with_parent
+    from optmatch.running.worker import join_files, stop_with_parent
 
     _quiet_optuna()
     if args.parent_pid is not None:

@@ -8,7 +8,7 @@ import sys
 from pathlib import Path
 
 from optmatch.cli.terminal import console, progress, table
-from optmatch.study.loader import StudyFileError, check_study, load_study
+from optmatch.studyfile.loader import StudyFileError, check_study, load_study
 
 EXIT_FAILS_MASK = 1
 
@@ -66,7 +66,7 @@ def print_designs(doc: dict) -> None:
 def run_run(args: argparse.Namespace) -> int:
     import optuna
 
-    from optmatch.study.pipeline import run_study
+    from optmatch.running.pipeline import run_study
 
     optuna.logging.set_verbosity(optuna.logging.ERROR)  # an interrupted trial is not a traceback
     study = load_study(args.file)

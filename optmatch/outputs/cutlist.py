@@ -1,6 +1,6 @@
 """The cut list as a technician reads it (markdown) and as a spreadsheet takes it (CSV).
 
-Input: the ``cut_list`` document of summary.json (see :func:`optmatch.study.build.build_view`).
+Input: the ``cut_list`` document of summary.json (see :func:`optmatch.running.build.build_view`).
 Lengths in mm, delays in ns, electrical lengths in degrees at the reference frequency.
 """
 

@@ -18,7 +18,7 @@ from optmatch.domain.microstrip import Substrate, velocity_factor
 from optmatch.domain.network import Bound, ElementSpec, Medium
 from optmatch.domain.templates import LengthBound
 from optmatch.io.catalog import CatalogError, cables_from_mapping, read_catalog, shipped_catalog
-from optmatch.study.schema import AllowanceModel, ShelfModel, StockPieceModel, Z0Range
+from optmatch.studyfile.schema import AllowanceModel, ShelfModel, StockPieceModel, Z0Range
 from optmatch.units import C0
 
 Problem = Callable[[str, str], None]  # (where, what)

@@ -25,7 +25,7 @@ from optmatch.domain.network import Choice
 from optmatch.domain.optimise import inner_search
 from optmatch.domain.problem import Problem
 from optmatch.domain.seeds import Seed, closed_form_seeds
-from optmatch.study.loader import SearchSettings, Study
+from optmatch.studyfile.loader import SearchSettings, Study
 
 optuna.logging.set_verbosity(optuna.logging.WARNING)
 

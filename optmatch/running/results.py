@@ -20,9 +20,9 @@ from optmatch.outputs.cutlist import cut_list_csv, cut_list_markdown
 from optmatch.outputs.network_export import export_touchstone
 from optmatch.outputs.plots import plot_pareto, plot_return_loss, plot_smith
 from optmatch.outputs.tables import design_rows, summary_markdown, write_designs_csv
-from optmatch.study.build import build_view
-from optmatch.study.loader import Study
-from optmatch.study.search import SearchOutcome
+from optmatch.running.build import build_view
+from optmatch.running.search import SearchOutcome
+from optmatch.studyfile.loader import Study
 
 PLOTTED_DESIGNS = 3
 

@@ -15,10 +15,10 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from optmatch.errors import OptmatchError
-from optmatch.study.loader import Study, StudyFileError, load_study
-from optmatch.study.results import results_dir
-from optmatch.study.search import run_search
-from optmatch.study.storage import open_storage
+from optmatch.running.results import results_dir
+from optmatch.running.search import run_search
+from optmatch.running.storage import open_storage
+from optmatch.studyfile.loader import Study, StudyFileError, load_study
 
 PARENT_POLL_S = 1.0
 

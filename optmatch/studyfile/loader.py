@@ -32,7 +32,7 @@ from optmatch.domain.templates import STEPPED_Z0_OHM, LengthBound, build_templat
 from optmatch.domain.tolerance import Spread
 from optmatch.errors import OptmatchError
 from optmatch.io.touchstone import read_one_port
-from optmatch.study.schema import (
+from optmatch.studyfile.schema import (
     BRANCH_MARK,
     NAME_PATTERN,
     SECTION_MODELS,
@@ -51,7 +51,7 @@ from optmatch.study.schema import (
     ToleranceModel,
     Z0Range,
 )
-from optmatch.study.shelf import ShelfContext, shelf_context, shelf_element, uses_shelf
+from optmatch.studyfile.shelf import ShelfContext, shelf_context, shelf_element, uses_shelf
 from optmatch.units import Length
 
 

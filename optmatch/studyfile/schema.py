@@ -2,7 +2,7 @@
 
 Every model forbids unknown keys.  Quantities typed with units are parsed here into SI numbers
 (Hz, Ω, H, F, s, dB) or :class:`~optmatch.units.Length`; anything that needs the frequency grid,
-the reference frequency or other files is left to :mod:`optmatch.study.loader`.
+the reference frequency or other files is left to :mod:`optmatch.studyfile.loader`.
 
 One model per element kind (``line``, ``shunt_stub``, ``series_stub``, ``lumped``) so that later
 keys (a per-element ``cable:``, a top-level ``shelf:``) slot in as new optional fields.

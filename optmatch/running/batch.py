@@ -28,10 +28,10 @@ from optuna.storages import BaseStorage
 from optmatch.errors import OptmatchError
 from optmatch.io.atomic import write_json_atomic
 from optmatch.outputs.report import write_report
-from optmatch.study.loader import Study, StudyFileError, load_study
-from optmatch.study.results import results_dir, write_results
-from optmatch.study.search import enqueue_seeds, open_study, run_search, study_seeds
-from optmatch.study.storage import fail_stale, is_url, live_running, open_database, open_storage
+from optmatch.running.results import results_dir, write_results
+from optmatch.running.search import enqueue_seeds, open_study, run_search, study_seeds
+from optmatch.running.storage import fail_stale, is_url, live_running, open_database, open_storage
+from optmatch.studyfile.loader import Study, StudyFileError, load_study
 
 STATE_NAME = "batch.json"
 STUDY_SUFFIXES = (".yaml", ".yml")

@@ -4,10 +4,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from optmatch.study.loader import Study
-from optmatch.study.results import results_dir, write_results
-from optmatch.study.search import ProgressFn, run_search
-from optmatch.study.storage import open_storage
+from optmatch.running.results import results_dir, write_results
+from optmatch.running.search import ProgressFn, run_search
+from optmatch.running.storage import open_storage
+from optmatch.studyfile.loader import Study
 
 
 def run_study(study: Study, out_root: Path, storage_url: str | None = None,

@@ -11,7 +11,7 @@ import numpy as np
 from optmatch.domain.design import Design, describe, performance
 from optmatch.domain.microstrip import printed_line
 from optmatch.domain.power import check_ratings, drive
-from optmatch.study.loader import Study
+from optmatch.studyfile.loader import Study
 
 TRIM_FRACTION = 0.03  # open stubs: cut long by 3 % ...
 TRIM_MIN_MM = 5.0  # ... or 5 mm, whichever is more, then trim while measuring
