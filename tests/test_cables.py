@@ -24,7 +24,7 @@ def test_velocity_factors_of_the_trade():
     for name in ("RG-58-class", "RG-213-class", "RG-174-class", "RG-59-class"):
         assert CAT[name].medium().vf == pytest.approx(0.66, abs=0.01)
     # foamed dielectric: VF about 0.8–0.85 (common practice, no source)
-    for name in ("foam-400", "RG-6-class"):
+    for name in ("foam-10mm", "RG-6-class"):
         assert 0.78 <= CAT[name].medium().vf <= 0.86
     # PTFE dielectric: VF ≈ 1/√2.1 ≈ 0.69-0.70 (εr of PTFE ≈ 2.1, common practice, no source)
     assert CAT["semi-rigid-141"].vf == pytest.approx(1 / math.sqrt(2.1), abs=0.01)
@@ -36,7 +36,7 @@ def test_physical_length_of_a_quarter_wave():
     assert 0.25 * C0 / 100e6 * vf == pytest.approx(0.495, abs=0.005)
 
 
-@pytest.mark.parametrize("name", ["RG-58-class", "foam-400", "RG-59-class"])
+@pytest.mark.parametrize("name", ["RG-58-class", "foam-10mm", "RG-59-class"])
 def test_catalog_loss_matches_skrf_lossy_line(name):
     cable = CAT[name]
     med = cable.medium()
@@ -94,7 +94,7 @@ def test_user_catalog_extends_and_replaces(tmp_path):
     assert cat["RG-58-class"].z0_ohm == 52.0  # the user's entry replaces the shipped one
     assert cat["hardline-half"].max_power_w == 2500.0
     assert set(CAT) <= set(cat)
-    assert merge_catalogs(CAT, {})["foam-400"] == CAT["foam-400"]
+    assert merge_catalogs(CAT, {})["foam-10mm"] == CAT["foam-10mm"]
 
 
 def test_bad_catalog_is_one_line_per_problem(tmp_path):

@@ -50,7 +50,7 @@ shelf:
     tee: {length: 20mm, vf: 0.7}
 network:
   elements:
-    - line: {length: {min: 0deg, max: 180deg}, cable: foam-400, cut: {step: 5mm, min: 15mm}, allowances: [tee]}
+    - line: {length: {min: 0deg, max: 180deg}, cable: foam-10mm, cut: {step: 5mm, min: 15mm}, allowances: [tee]}
     - shunt_stub: {end: either, cable: RG-58-class, stock: true, allowances: [tee]}
     - line: {length: 45deg, cable: RG-58-class, cut: {step: 5mm, min: 10mm}}
     - shunt_stub: {end: either, cable: RG-58-class, stock: true, allowances: [tee]}
@@ -139,7 +139,7 @@ def test_shelf_errors_name_the_key(tmp_path):
           elements:
             - line: {length: 10deg, cable: RG-999-class}
             - shunt_stub: {length: {min: 5deg, max: 10deg}, cable: RG-58-class, cut: {step: 5mm, min: 200mm}}
-            - shunt_stub: {length: 30deg, cable: foam-400, allowances: [nothing]}
+            - shunt_stub: {length: 30deg, cable: foam-10mm, allowances: [nothing]}
         """)
     text = "\n".join(probs)
     assert len(probs) == 3
