@@ -222,3 +222,183 @@ def test_open_stub_cut_short_asks_for_a_recut():
     assert abs(plan.recut.length_mm - _nominal_m(media)[1] * 1e3) < 1.0
     assert 0.0 < plan.recut.margin_sigma_db < 0.5
     assert actual >= 0.0 and abs(actual - plan.recut.margin_db) < 3 * plan.recut.margin_sigma_db
+
+
+# ------------------------------------------------------------------ the command
+
+
+CLI_STUDY = """
+name: bench-cli
+load: {impedance: 25-30j}
+mask: {segments: [{from: 950MHz, to: 1050MHz, return_loss: 14}]}
+network:
+  elements:
+    - line: {length: {min: 0deg, max: 180deg}, z0: 50, vf: 0.66}
+    - shunt_stub: {length: {min: 5deg, max: 180deg}, end: open, z0: 50, vf: 0.66}
+search: {trials: 3, seed: 1, population: 16, generations: 8}
+"""
+CLI_SWEEP_HZ = np.linspace(900e6, 1100e6, 201)
+
+
+@pytest.fixture(scope="module")
+def cli_run(tmp_path_factory):
+    """A small finished study (our own values) and its results folder."""
+    from optmatch.running.pipeline import run_study
+    from optmatch.studyfile.loader import load_study
+
+    base = tmp_path_factory.mktemp("bench")
+    path = base / "bench_cli.yaml"
+    path.write_text(CLI_STUDY)
+    study = load_study(path)
+    folder, doc = run_study(study, base / "results")
+    assert doc["designs"][0]["margin_db"] > 0.5  # precondition: the design meets its mask
+    return path, folder
+
+
+@pytest.fixture
+def results(cli_run, tmp_path):
+    """A fresh copy of the results folder for one test (the study file stays where it was run from)."""
+    import shutil
+
+    _, folder = cli_run
+    copy = tmp_path / "results" / folder.name
+    shutil.copytree(folder, copy)
+    return copy
+
+
+def _cli_measurement(results_folder: Path, out: Path, stub_mm: float, freq=CLI_SWEEP_HZ, zload=25 - 30j,
+                     noise=0.002) -> Path:
+    """A bench sweep of design #1 of the CLI study with the open stub ``stub_mm`` off, by scikit-rf."""
+    import json
+
+    from optmatch.io.touchstone import write_touchstone
+
+    doc = json.loads((results_folder / "summary.json").read_text())
+    f = skrf.Frequency.from_f(freq, unit="Hz")
+    z = np.full(freq.size, zload, dtype=complex)
+    net = skrf.Network(frequency=f, s=((z - 50) / (z + 50)).reshape(-1, 1, 1), z0=50)
+    media = skrf.media.DefinedGammaZ0(f, z0_port=50, z0=50, gamma=1j * 2 * np.pi * freq / (0.66 * C0))
+    line, stub = doc["designs"][0]["elements"]
+    net = media.line(line["physical_m"], unit="m") ** net
+    net = media.shunt_delay_open(stub["physical_m"] + stub_mm * 1e-3, unit="m") ** net
+    rng = np.random.default_rng(3)
+    g = net.s[:, 0, 0] + noise * (rng.normal(size=freq.size) + 1j * rng.normal(size=freq.size))
+    return write_touchstone(out, freq, g, 50.0)
+
+
+def _run(argv, capsys):
+    from optmatch.cli.main import main
+
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def _snapshot(folder: Path) -> dict[str, bytes]:
+    return {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()}
+
+
+def test_cli_trims_a_long_stub_and_writes_its_files(results, tmp_path, capsys):
+    import json
+
+    before = _snapshot(results)
+    measured = _cli_measurement(results, tmp_path / "built.s1p", stub_mm=4.0)
+    code, out, err = _run(["trim", results, "--measured", measured, "--json"], capsys)
+    assert code == 0, err
+    doc = json.loads(out)  # one JSON document
+    assert doc["fit"]["verdict"] == "explained"
+    assert [s["element"] for s in doc["steps"]] == [2]
+    assert doc["fit"]["pieces"][1]["error_mm"] == pytest.approx(4.0, abs=0.5)
+    assert doc["margin_db"]["after_trims"] >= 0.0 and doc["restores"]
+    assert (results / "trim.md").read_text().startswith("<!-- written by optmatch trim -->")
+    assert (results / "trim.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    after = _snapshot(results)
+    assert {k: v for k, v in after.items() if k not in ("trim.md", "trim.png")} == before  # study files untouched
+    # a second run (the terminal view) replaces its own files
+    code, out, err = _run(["trim", results, "--measured", measured], capsys)
+    assert code == 0 and "element 2" in out and "caution" in out
+
+
+def test_cli_says_recut_when_no_trim_restores(results, tmp_path, capsys):
+    import json
+
+    measured = _cli_measurement(results, tmp_path / "short.s1p", stub_mm=-12.0)
+    code, out, _ = _run(["trim", results, "--measured", measured, "--json"], capsys)
+    doc = json.loads(out)
+    assert code == 1 and not doc["restores"]
+    assert doc["recut"]["element"] == 2 and doc["recut"]["restores"]
+
+
+def _bad_cases(results: Path, tmp_path: Path, cli_run) -> dict[str, tuple[list, str]]:
+    good = _cli_measurement(results, tmp_path / "good.s1p", stub_mm=2.0)
+    narrow = _cli_measurement(results, tmp_path / "narrow.s1p", 2.0, freq=np.linspace(960e6, 1100e6, 141))
+    other = _cli_measurement(results, tmp_path / "other.s1p", 2.0, zload=60 + 45j)
+    two_port = tmp_path / "two.s2p"
+    skrf.Network(frequency=skrf.Frequency.from_f(CLI_SWEEP_HZ, unit="Hz"), s=np.zeros((201, 2, 2)),
+                 z0=50).write_touchstone(str(two_port.with_suffix("")))
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    return {
+        "narrow band": (["trim", results, "--measured", narrow], "not the mask band"),
+        "two-port": (["trim", results, "--measured", two_port], "2-port"),
+        "no such design": (["trim", results, "--measured", good, "--design", "99"], "no such design"),
+        "no summary": (["trim", empty, "--measured", good], "no summary.json"),
+        "other network": (["trim", results, "--measured", other], "does not explain"),
+    }
+
+
+@pytest.mark.parametrize("case", ["narrow band", "two-port", "no such design", "no summary", "other network"])
+def test_cli_bad_input_is_one_line_and_writes_nothing(case, results, tmp_path, cli_run, capsys):
+    argv, words = _bad_cases(results, tmp_path, cli_run)[case]
+    before = _snapshot(results)
+    code, out, err = _run(argv, capsys)
+    assert code == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("optmatch: error:") and words in lines[0], err
+    assert out == "" and _snapshot(results) == before
+
+
+def test_cli_refuses_a_changed_study_and_a_foreign_file(results, tmp_path, cli_run, capsys):
+    study_path, _ = cli_run
+    good = _cli_measurement(results, tmp_path / "good.s1p", stub_mm=2.0)
+    (results / "trim.md").write_text("my own notes\n")
+    code, _, err = _run(["trim", results, "--measured", good], capsys)
+    assert code == 2 and "not written by optmatch trim" in err
+    assert (results / "trim.md").read_text() == "my own notes\n" and not (results / "trim.png").exists()
+    (results / "trim.md").unlink()
+    original = study_path.read_text()
+    try:
+        study_path.write_text(original.replace("return_loss: 14", "return_loss: 13"))
+        code, _, err = _run(["trim", results, "--measured", good], capsys)
+        assert code == 2 and "changed since the run" in err
+    finally:
+        study_path.write_text(original)
+    assert not (results / "trim.md").exists()
+
+
+def test_demo_trim_works_after_the_demo_run(tmp_path, monkeypatch, capsys):
+    # The README's bench demo, from the project root: run the demo study, then trim with the committed
+    # invented as-built sweep.  The sweep was made by configs/data/make_asbuilt_invented.py from the
+    # design the seeded demo search finds, with invented errors that the fit must find again.
+    import importlib.util
+    import json
+
+    spec = importlib.util.spec_from_file_location("make_asbuilt", ROOT / "configs" / "data" / "make_asbuilt_invented.py")
+    maker = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(maker)
+    monkeypatch.chdir(ROOT)
+    code, _, err = _run(["run", "configs/demo_whip.yaml", "--out", tmp_path, "--quiet"], capsys)
+    assert code == 0, err
+    regenerate = ("the demo design no longer matches the committed as-built sweep; regenerate it: "
+                  "optmatch run configs/demo_whip.yaml && python configs/data/make_asbuilt_invented.py")
+    code, out, err = _run(["trim", tmp_path / "demo-whip", "--measured",
+                           "configs/data/demo_whip_asbuilt_invented.s1p", "--json"], capsys)
+    assert code == 0, f"{regenerate}\n{err}"
+    doc = json.loads(out)
+    assert doc["fit"]["verdict"] == "explained", regenerate
+    stub = doc["fit"]["pieces"][1]
+    assert stub["part"] == "shunt stub, open end"
+    assert stub["error_mm"] == pytest.approx(maker.CUT_ERRORS_MM[1], abs=0.5)
+    assert doc["fit"]["cables"][0]["z0_scale_pct"] == pytest.approx(100 * maker.Z0_SCALE, abs=0.3)
+    assert [s["element"] for s in doc["steps"]] == [2] and doc["restores"]
+    assert (tmp_path / "demo-whip" / "trim.md").is_file() and (tmp_path / "demo-whip" / "trim.png").is_file()

@@ -67,6 +67,7 @@ class Fit:
     freq: np.ndarray
     gamma_measured: np.ndarray
     gamma_fitted: np.ndarray
+    zload: np.ndarray
     residual_rms: float
     scatter: float
     ratio: float
@@ -214,5 +215,5 @@ def fit_build(model: BuildModel, freq_hz: np.ndarray, gamma_measured: np.ndarray
     ratio = residual_rms / sn
     gamma_fit = model.gamma(x.reshape(1, -1), f_all, z_all)[0]
     return Fit(model=model, x=x, sigma=sigma, cov=cov, at_bound=at_bound, freq=f_all, gamma_measured=g_all,
-               gamma_fitted=gamma_fit, residual_rms=residual_rms, scatter=raw_scatter, ratio=ratio,
+               gamma_fitted=gamma_fit, zload=z_all, residual_rms=residual_rms, scatter=raw_scatter, ratio=ratio,
                verdict=verdict_of(ratio, any(at_bound)))
