@@ -402,3 +402,14 @@ def test_demo_trim_works_after_the_demo_run(tmp_path, monkeypatch, capsys):
     assert doc["fit"]["cables"][0]["z0_scale_pct"] == pytest.approx(100 * maker.Z0_SCALE, abs=0.3)
     assert [s["element"] for s in doc["steps"]] == [2] and doc["restores"]
     assert (tmp_path / "demo-whip" / "trim.md").is_file() and (tmp_path / "demo-whip" / "trim.png").is_file()
+
+
+def test_stock_pieces_are_never_trimmed():
+    # Common practice, no source: a ready-made piece carries connectors, so it is swapped, not trimmed.
+    from optmatch.bench.asbuilt import Piece
+
+    stock = Piece(1, "shunt_stub", "open", "c", 100.0, 0.66, stock=True)
+    cut = replace(stock, stock=False)
+    everything = TrimRules(short_stubs=True, lines=True)
+    assert not everything.allows(stock) and everything.allows(cut) and TrimRules().allows(cut)
+    assert not TrimRules().allows(replace(cut, end="short")) and not TrimRules().allows(replace(cut, kind="line"))

@@ -28,7 +28,7 @@ MIN_PIECE_MM = 0.5  # shorter cable sections are taken as absent (a zero-length 
 class Piece:
     """One cut piece of cable: element ``index`` (0-based, load outwards), its ``kind`` and stub
     ``end``, the ``cable`` it is cut from, its designed length ``nominal_mm`` (cable only, after
-    allowances) and the cable's velocity factor ``vf``."""
+    allowances), the cable's velocity factor ``vf``, and whether it is a ready-made ``stock`` piece."""
 
     index: int
     kind: str
@@ -36,6 +36,7 @@ class Piece:
     cable: str
     nominal_mm: float
     vf: float
+    stock: bool = False
 
     @property
     def label(self) -> str:
@@ -74,8 +75,10 @@ class BuildModel:
             mm = rep.physical_m * 1e3
             if mm < MIN_PIECE_MM:
                 continue
+            el = problem.network.elements[rep.index]
+            stock = el.piece(design.choice.medium[rep.index]) is not None
             pieces.append(Piece(rep.index, rep.kind, rep.end, cable_key(rep.medium, rep.z0_ohm or 0.0, rep.vf or 1.0),
-                                mm, rep.vf or 1.0))
+                                mm, rep.vf or 1.0, stock))
         counts: dict[str, int] = {}
         for p in pieces:
             counts[p.cable] = counts.get(p.cable, 0) + 1

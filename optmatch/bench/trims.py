@@ -33,12 +33,15 @@ RESOLUTION_MM = 0.02  # the search refines trims down to this step
 
 @dataclass(frozen=True)
 class TrimRules:
-    """Which pieces may be trimmed besides open stubs."""
+    """Which pieces may be trimmed besides open stubs.  Ready-made stock pieces never are (they carry
+    connectors); a recut may replace one."""
 
     short_stubs: bool = False
     lines: bool = False
 
     def allows(self, piece: Piece) -> bool:
+        if piece.stock:
+            return False
         if piece.kind == "line":
             return self.lines
         return piece.end == "open" or self.short_stubs

@@ -26,13 +26,21 @@ from optmatch.domain.design import Design
 from optmatch.domain.loads import TabulatedLoad
 from optmatch.domain.network import Choice
 from optmatch.errors import OptmatchError
-from optmatch.io.atomic import _plain
 from optmatch.io.touchstone import read_one_port
-from optmatch.outputs.trim_report import TRIM_MD, TRIM_PNG, ours, trim_document, write_trim_files
+from optmatch.outputs.trim_report import (
+    TRIM_MD,
+    TRIM_PNG,
+    json_ready,
+    ours,
+    trim_document,
+    verdict_text,
+    write_trim_files,
+)
 from optmatch.studyfile.loader import Study, load_study
 
 EXIT_NO_TRIM_RESTORES = 1
 MAX_MEASURED_BYTES = 64 * 2**20  # a bench sweep is kilobytes; refuse anything absurd before parsing it
+MAX_SUMMARY_BYTES = 256 * 2**20
 
 
 class TrimInputError(OptmatchError):
@@ -82,6 +90,8 @@ def read_results(folder: Path, rank: int) -> Built:
     if not summary.is_file():
         raise TrimInputError(f"{folder}: no summary.json here (not a study's results folder, or its run has not "
                              "finished)")
+    if summary.stat().st_size > MAX_SUMMARY_BYTES:
+        raise TrimInputError(f"{summary}: larger than {MAX_SUMMARY_BYTES // 2**20} MiB; not a study summary")
     try:
         doc = json.loads(summary.read_text(encoding="utf-8"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
@@ -226,8 +236,6 @@ def run_trim(args: argparse.Namespace) -> int:
                     load=str(args.load) if args.load is not None else None, grid=problem.grid,
                     design_margin_db=built.design.margin_db)
     if not fit.explained:
-        from optmatch.outputs.trim_report import verdict_text
-
         raise TrimInputError(f"{args.measured}: {verdict_text(fit, args.load is not None)}")
     plan = plan_trims(fit, rules)
     measured_margin = measured_margin_db(gamma_against(measured, problem.grid.freq, problem.z_sys), problem)
@@ -235,7 +243,7 @@ def run_trim(args: argparse.Namespace) -> int:
     files = write_trim_files(folder, doc, fit, plan, problem.grid)
     doc["files"] = [str(p) for p in files]
     if args.json:
-        print(json.dumps(_plain(doc), indent=2, ensure_ascii=False, allow_nan=False))
+        print(json.dumps(json_ready(doc), indent=2, ensure_ascii=False, allow_nan=False))
     else:
         print_trim(doc)
     return 0 if plan.restores else EXIT_NO_TRIM_RESTORES

@@ -46,9 +46,10 @@ HOW_TO = {
 }
 
 
-def part_name(kind: str, end: str | None) -> str:
-    """``line`` or ``shunt stub, open end``."""
-    return "line" if kind == "line" else f"{kind.replace('_', ' ')}, {end} end"
+def part_name(kind: str, end: str | None, stock: bool = False) -> str:
+    """``line`` or ``shunt stub, open end``, marked when a ready-made stock piece."""
+    name = "line" if kind == "line" else f"{kind.replace('_', ' ')}, {end} end"
+    return name + (" (stock piece)" if stock else "")
 
 
 def _how(t: PieceTrim) -> str:
@@ -91,7 +92,7 @@ def trim_document(*, study: str, results: str, rank: int, measured: str, load: s
     pieces = []
     for t, at_bound in zip(plan.pieces, fit.at_bound[:n], strict=True):
         pieces.append({
-            "element": t.piece.index + 1, "part": part_name(t.piece.kind, t.piece.end), "cable": t.piece.cable,
+            "element": t.piece.index + 1, "part": part_name(t.piece.kind, t.piece.end, t.piece.stock), "cable": t.piece.cable,
             "design_mm": t.piece.nominal_mm, "error_mm": t.error_mm, "sigma_mm": t.sigma_mm,
             "built_mm": t.built_mm, "trim_mm": t.trim_mm, "new_mm": t.new_mm, "step": t.step or None,
             "effect_db": t.effect_db if t.step else None, "may_trim": t.may, "at_bound": at_bound,
@@ -108,13 +109,13 @@ def trim_document(*, study: str, results: str, rank: int, measured: str, load: s
         j = model.z0_cables.index(name)
         row.update(z0_scale_pct=float(fit.z0_scale_pct[j]), z0_sigma_pct=float(fit.z0_sigma_pct[j]))
         cables.append(row)
-    steps = [{"step": t.step, "element": t.piece.index + 1, "part": part_name(t.piece.kind, t.piece.end),
+    steps = [{"step": t.step, "element": t.piece.index + 1, "part": part_name(t.piece.kind, t.piece.end, t.piece.stock),
               "trim_mm": t.trim_mm, "new_mm": t.new_mm, "how": _how(t), "effect_db": t.effect_db}
              for t in plan.steps]
     recut = None
     if plan.recut is not None and plan.recut_plan is not None:
         r = plan.recut
-        recut = {"element": r.piece.index + 1, "part": part_name(r.piece.kind, r.piece.end),
+        recut = {"element": r.piece.index + 1, "part": part_name(r.piece.kind, r.piece.end, r.piece.stock),
                  "cable": r.piece.cable, "length_mm": r.length_mm, "margin_db": r.margin_db,
                  "margin_sigma_db": r.margin_sigma_db, "restores": r.restores,
                  "trims": [{"element": t.piece.index + 1, "trim_mm": t.trim_mm, "new_mm": t.new_mm, "how": _how(t)}
@@ -155,6 +156,21 @@ def trim_document(*, study: str, results: str, rank: int, measured: str, load: s
                   "min_trim_mm": MIN_TRIM_MM},
         "caution": CAUTION,
     }
+
+
+def json_ready(obj: object) -> object:
+    """A copy with numpy numbers made plain and non-finite numbers made None (strict JSON)."""
+    if isinstance(obj, dict):
+        return {str(k): json_ready(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [json_ready(v) for v in obj]
+    if isinstance(obj, (bool, np.bool_)):
+        return bool(obj)
+    if isinstance(obj, (int, np.integer)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        return float(obj) if np.isfinite(obj) else None
+    return obj
 
 
 def _mm(v: float | None, fmt: str = ".1f") -> str:
