@@ -119,7 +119,8 @@ def test_scatter_estimate_matches_known_noise():
 
 
 def test_fit_recovers_a_long_stub_and_a_slow_cable():
-    # One cable for every piece, its VF 2 % low; the open stub cut 3 mm long (issue 10's example).
+    # One cable for every piece, its VF 2 % low; the open stub cut 3 mm long (our own values, the
+    # example of issue 10).  Reference: the build cascaded by scikit-rf, independent of our engine.
     media = (SOLID,) * 4
     errors, scale = [0.0, 3.0, 0.0, 0.0], [-0.02] * 4
     problem, model, fit = _fit(media, errors, scale)
@@ -139,7 +140,8 @@ def test_fit_recovers_a_long_stub_and_a_slow_cable():
 
 
 def test_fit_recovers_errors_on_two_cables_and_trims_restore_the_mask():
-    # Lines from one cable with its VF 2 % low; stubs from another, the open stub cut 3 mm long.
+    # Lines from one cable with its VF 2 % low; stubs from another, the open stub cut 3 mm long (our
+    # own values).  Reference: scikit-rf cascades of the true build, before and after the trims.
     media = (SOLID, FOAM, SOLID, FOAM)
     errors, scale = [0.0, 3.0, 0.0, 0.0], [-0.02, 0.0, -0.02, 0.0]
     problem, model, fit = _fit(media, errors, scale)
@@ -156,7 +158,8 @@ def test_fit_recovers_errors_on_two_cables_and_trims_restore_the_mask():
 
 
 def test_open_stub_cut_long_is_trimmed_back():
-    # The cut list's advice followed: the open stub cut 5 mm long, small cut errors elsewhere.
+    # The cut list's advice followed: the open stub cut 5 mm long, small cut errors elsewhere (our own
+    # values).  Reference: scikit-rf cascades of the true build.
     media = (SOLID,) * 4
     errors, scale = [0.6, 5.0, -0.4, 0.3], [0.0] * 4
     problem, _, fit = _fit(media, errors, scale, seed=4)
@@ -197,7 +200,10 @@ def test_changed_load_is_not_explained():
     g = _measure(media, [0.0, 3.0, 0.0, 0.0], [0.0] * 4, load=changed)
     fit = fit_build(model, MEASURED_HZ, g, whip(MEASURED_HZ))
     assert fit.verdict == "not explained"
-    assert fit.ratio > 3.0 or any(fit.at_bound)
+    from optmatch.outputs.trim_report import verdict_text
+
+    text = verdict_text(fit, load_given=False)
+    assert "does not explain" in text and "the load changed" in text and "--load" in text
     # the same build measured against the changed load given as the load: explained again
     refit = fit_build(model.with_problem(_problem(media, changed)[0]), MEASURED_HZ, g, changed(MEASURED_HZ))
     assert refit.verdict == "explained"

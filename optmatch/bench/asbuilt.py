@@ -1,11 +1,12 @@
 """The as-built network: a finished design with a length error on every cable piece and a
-velocity-factor scale per cable, mapped onto engine parameters.
+velocity-factor and a Z0 scale per cable, mapped onto engine parameters.
 
-The physics of a build error (a cut of ℓ + δ at VF·(1 + s)) is that of the tolerance view,
+The physics of a build error (a cut of ℓ + δ at VF·(1 + s), Z0·(1 + z)) is that of the tolerance view,
 :func:`optmatch.domain.tolerance.perturbed_params`; this module only chooses the unknowns.
 
 Parameter vector ``x`` (n, p), columns in this order: one length error per piece (mm, positive =
-longer than designed), then one velocity-factor scale per fitted cable (%, positive = faster).
+longer than designed), then one velocity-factor scale per cable of ``cables`` (%, positive =
+faster), then one Z0 scale per cable of ``z0_cables`` (%).
 Units elsewhere: Hz, Ω, m, dB.
 """
 
@@ -57,7 +58,8 @@ class BuildModel:
     ``problem`` gives the network, the mask grid and the load on it (replace its ``zload`` for a
     fresh load measurement); ``pieces`` are the cable sections with a length error; ``cables`` are
     the cables whose VF scale is fitted: only those with two or more pieces, because on a lone
-    piece a VF change and a cut error shift the same delay and cannot be told apart.
+    piece a VF change and a cut error shift the same delay and cannot be told apart; ``z0_cables``
+    are the cables whose Z0 scale is fitted (every cable in the build).
     """
 
     problem: Problem

@@ -1,15 +1,17 @@
 """Fit the as-built network to a bench measurement of its input reflection.
 
-Unknowns (see :mod:`optmatch.bench.asbuilt`): a length error per piece (mm) and a velocity-factor
-scale per cable that has two or more pieces (%), each bounded.  scipy's bounded least squares
-(trust-region reflective) minimises the real and imaginary parts of Γ_model − Γ_measured over the
-measured band, each divided by the measurement's scatter, together with two gentle priors:
+Unknowns (see :mod:`optmatch.bench.asbuilt`): a length error per piece (mm), a velocity-factor
+scale per cable that has two or more pieces (%) and a Z0 scale per cable (%), each bounded.  scipy's
+bounded least squares (trust-region reflective) minimises the real and imaginary parts of
+Γ_model − Γ_measured over the measured band, each divided by the measurement's scatter, together
+with gentle priors:
 
 * length errors: a soft-L1 penalty of scale :data:`CUT_PRIOR_MM`.  Most pieces are cut right to a
   millimetre and a few are off by more (a miscut, or an open stub cut long to be trimmed), so the
   penalty grows only like √|δ| for large errors and does not spread one piece's error over the others;
 * VF scales: a normal prior of :data:`VF_PRIOR_PCT` (reel-to-reel spread of a few per cent,
-  common practice, no source).
+  common practice, no source); Z0 scales: a normal prior of :data:`Z0_PRIOR_PCT`.  Both are bounded
+  at :data:`SCALE_BOUND_SIGMAS` prior σ: a fit that needs more is not believed.
 
 The priors matter only where the measurement cannot decide: a cut error and a VF change both shift
 a piece's delay, so the measurement fixes the delays and the priors split each cable's common
