@@ -18,7 +18,7 @@ EXIT_INTERRUPTED = 130
 
 
 def _parser() -> argparse.ArgumentParser:
-    from optmatch.cli import batch, cables, run, spot
+    from optmatch.cli import batch, cables, run, spot, trim
 
     parser = argparse.ArgumentParser(
         prog="optmatch",
@@ -31,6 +31,7 @@ def _parser() -> argparse.ArgumentParser:
     run.register(sub)
     batch.register(sub)
     cables.register(sub)
+    trim.register(sub)
     return parser
 
 
