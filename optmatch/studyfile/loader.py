@@ -489,7 +489,8 @@ def _check_names(raw: dict, catalog: dict[str, Cable], probs: _Problems) -> None
 
 
 def _check_work(parts: dict[str, Any], elements: tuple[ElementSpec, ...] | None, probs: _Problems) -> None:
-    """Refuse, before anything runs, a study whose search or robustness view would not fit in memory."""
+    """Refuse, before anything runs, a study whose search or robustness view is beyond the caps or would
+    not fit in memory; the message states the estimate."""
     mask: MaskModel | None = parts.get("mask")
     search: SearchModel | None = parts.get("search")
     tol: ToleranceModel | None = parts.get("tolerance")
@@ -498,31 +499,31 @@ def _check_work(parts: dict[str, Any], elements: tuple[ElementSpec, ...] | None,
         probs.add("mask", f"{points:,} grid points in all; at most {limits.MAX_GRID_POINTS:,} "
                           "(lower points on the segments)")
         return
-    if search is not None and search.population > limits.MAX_POPULATION:
-        probs.add("search.population", f"{search.population:,} candidates; at most {limits.MAX_POPULATION:,}")
-    if tol is not None and tol.samples > limits.MAX_SAMPLES:
-        probs.add("tolerance.samples", f"{tol.samples:,} builds; at most {limits.MAX_SAMPLES:,}")
-    if points is None or elements is None:
-        return
-    dim = NetworkSpec(elements).dim
-    n_el = len(elements)
     budget = limits.MEMORY_BUDGET_BYTES
-    if search is not None and search.population <= limits.MAX_POPULATION:
-        need = limits.search_bytes(search.population, dim, n_el, points)
-        if need > budget:
-            probs.add("search.population", f"{search.population:,} candidates on {points:,} grid points need about "
-                      f"{limits.gib(need)} of memory (estimate: {limits.BYTES_PER_PARAMETER} B per candidate and "
-                      f"search parameter, {limits.BYTES_PER_ELEMENT} B per candidate and element, "
-                      f"{16 * limits.ENGINE_ARRAYS} B per grid point for each of up to {limits.ENGINE_CHUNK} "
-                      f"candidates at once); the limit is {limits.gib(budget)}: lower search.population or the "
-                      "mask points")
-    if tol is not None and tol.samples <= limits.MAX_SAMPLES:
-        need = limits.robustness_bytes(tol.samples, n_el, points)
-        if need > budget:
-            probs.add("tolerance.samples", f"{tol.samples:,} builds on {points:,} grid points need about "
-                      f"{limits.gib(need)} of memory (estimate: 64 B per build and element, "
-                      f"{16 * limits.ENGINE_ARRAYS} B per grid point for each of up to {limits.ENGINE_CHUNK} "
-                      f"builds at once); the limit is {limits.gib(budget)}: lower tolerance.samples")
+    known = points is not None and elements is not None
+    dim = NetworkSpec(elements).dim if known and elements is not None else 0
+    n_el = len(elements) if elements is not None else 0
+    if search is not None:
+        pop = search.population
+        need = limits.search_bytes(pop, dim, n_el, points) if known and points is not None else None
+        if pop > limits.MAX_POPULATION or (need is not None and need > budget):
+            estimate = (f" on {points:,} grid points need about {limits.gib(need)} of memory in one generation "
+                        f"(estimate: {limits.BYTES_PER_PARAMETER} B per candidate and search parameter, "
+                        f"{limits.BYTES_PER_ELEMENT} B per candidate and element, {16 * limits.ENGINE_ARRAYS} B per "
+                        f"grid point for each of up to {limits.ENGINE_CHUNK} candidates at once)"
+                        if need is not None else "")
+            probs.add("search.population", f"{pop:,} candidates{estimate}; the limits are "
+                      f"{limits.MAX_POPULATION:,} candidates and {limits.gib(budget)}: lower search.population"
+                      f"{' or the mask points' if need is not None and need > budget else ''}")
+    if tol is not None:
+        n = tol.samples
+        need = limits.robustness_bytes(n, n_el, points) if known and points is not None else None
+        if n > limits.MAX_SAMPLES or (need is not None and need > budget):
+            estimate = (f" on {points:,} grid points need about {limits.gib(need)} of memory (estimate: 64 B per "
+                        f"build and element, {16 * limits.ENGINE_ARRAYS} B per grid point for each of up to "
+                        f"{limits.ENGINE_CHUNK} builds at once)" if need is not None else "")
+            probs.add("tolerance.samples", f"{n:,} builds{estimate}; the limits are {limits.MAX_SAMPLES:,} builds "
+                      f"and {limits.gib(budget)}: lower tolerance.samples")
 
 
 # ---------------------------------------------------------------- the whole file

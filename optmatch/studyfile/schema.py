@@ -334,7 +334,7 @@ class ToleranceModel(_Model):
     z0: Percent | None = None
     vf: Percent | None = None
     parts: Percent = Field(default="0%", validate_default=True)
-    samples: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_SAMPLES)] = 500
+    samples: Annotated[int, Field(strict=True, ge=1, json_schema_extra={"maximum": limits.MAX_SAMPLES})] = 500
 
 
 class DriveModel(_Model):
@@ -667,7 +667,8 @@ class SearchModel(_Model):
     seed: Annotated[int, Field(strict=True, ge=0, le=limits.MAX_SEED)] = 0
     target_margin: Decibels | None = None
     keep: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_KEEP)] = 5
-    population: Annotated[int, Field(strict=True, ge=2, le=limits.MAX_POPULATION)] = 64
+    # The upper bounds of population and samples are checked by the loader against a memory estimate.
+    population: Annotated[int, Field(strict=True, ge=2, json_schema_extra={"maximum": limits.MAX_POPULATION})] = 64
     generations: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_GENERATIONS)] = 60
     objective: Literal["margin", "pareto"] = "margin"
 
