@@ -16,6 +16,13 @@ class OptmatchError(Exception):
     problems: list[str] | None = None
 
 
+def one_line(text: object) -> str:
+    """``text`` as one printable line: runs of whitespace become one space, and any other character
+    that is not printable (NUL, line and paragraph separators, ...) is shown escaped."""
+    joined = " ".join(str(text).split())
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in joined)
+
+
 def closest(word: str, options: Iterable[str], cutoff: float = 0.6) -> str | None:
     """The option closest to ``word`` by edit similarity, only when close (None otherwise).
 

@@ -19,7 +19,7 @@ import traceback
 from collections.abc import Sequence
 
 from optmatch import __version__
-from optmatch.errors import OptmatchError
+from optmatch.errors import OptmatchError, one_line
 
 EXIT_BAD_INPUT = 2
 EXIT_BUG = 3
@@ -47,7 +47,7 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def _one_line(text: object) -> str:
-    return " ".join(str(text).split())
+    return one_line(text)
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -19,6 +19,7 @@ Every problem is reported as one line naming the file and the key (``CatalogErro
 
 from __future__ import annotations
 
+import functools
 import math
 import os
 from collections.abc import Mapping
@@ -27,7 +28,7 @@ from typing import Any
 
 from optmatch.domain.cables import Cable, merge_catalogs
 from optmatch.domain.line_loss import LineLossError, fit_loss_two_point
-from optmatch.errors import OptmatchError
+from optmatch.errors import OptmatchError, one_line
 from optmatch.io.safe_yaml import Document, YamlError, parse_yaml, read_yaml
 from optmatch.units import parse_frequency, parse_impedance_real, parse_number, parse_velocity_factor
 
@@ -40,7 +41,7 @@ class CatalogError(OptmatchError):
     """A catalog with problems; ``problems`` holds one line each."""
 
     def __init__(self, problems: list[str]) -> None:
-        self.problems = list(problems)
+        self.problems = [one_line(p) for p in problems]
         super().__init__("\n".join(self.problems))
 
     def __str__(self) -> str:
@@ -167,10 +168,16 @@ def _parse_text(text: str, shown: str) -> dict[str, Cable]:
     return _cables_of(doc, shown)
 
 
-def shipped_catalog() -> dict[str, Cable]:
-    """The catalog shipped in the package (optmatch/data/cables.yaml)."""
+@functools.cache
+def _shipped() -> dict[str, Cable]:
     text = resources.files("optmatch").joinpath("data/cables.yaml").read_text(encoding="utf-8")
     return _parse_text(text, "optmatch/data/cables.yaml")
+
+
+def shipped_catalog() -> dict[str, Cable]:
+    """The catalog shipped in the package (optmatch/data/cables.yaml); read once per process (a new
+    dict each call; the cables themselves are frozen)."""
+    return dict(_shipped())
 
 
 def read_catalog(path: str | os.PathLike) -> dict[str, Cable]:

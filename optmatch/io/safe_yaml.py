@@ -18,7 +18,7 @@ from typing import Any
 
 import yaml
 
-from optmatch.errors import OptmatchError
+from optmatch.errors import OptmatchError, one_line
 
 MAX_BYTES = 1 << 20  # a study file or catalog is a few kB; 1 MiB is plenty
 MAX_DEPTH = 48  # nesting levels of mappings and lists
@@ -29,7 +29,7 @@ class YamlError(OptmatchError):
     """A YAML file that cannot be read safely; ``problems`` holds one line each (file first)."""
 
     def __init__(self, problems: list[str]) -> None:
-        self.problems = list(problems)
+        self.problems = [one_line(p) for p in problems]
         super().__init__("\n".join(self.problems))
 
     def __str__(self) -> str:
@@ -155,8 +155,9 @@ def parse_yaml(text: str, shown: str) -> Document:
     """Parse one YAML document safely; raises :class:`YamlError` (one line, naming ``shown``)."""
     if len(text.encode("utf-8", errors="replace")) > MAX_BYTES:
         raise YamlError([f"{shown}: larger than {MAX_BYTES // 1024} KiB; a study file or catalog is far smaller"])
-    loader = _Loader(text)
+    loader: _Loader | None = None
     try:
+        loader = _Loader(text)
         root = loader.get_single_node()
         if root is None:
             return Document(None)
@@ -175,11 +176,13 @@ def parse_yaml(text: str, shown: str) -> Document:
         kind = "" if what.endswith("is given twice") else "YAML syntax error: "
         raise YamlError([f"{shown}{line}: {kind}{what}"]) from None
     except yaml.YAMLError as exc:
-        raise YamlError([f"{shown}: YAML syntax error: {' '.join(str(exc).split())}"]) from None
+        what = str(getattr(exc, "problem", None) or exc).splitlines()[0]
+        raise YamlError([f"{shown}: YAML syntax error: {what}"]) from None
     except RecursionError:  # a guard of last resort; the depth bound above comes first
         raise YamlError([f"{shown}: nested too deeply; refused"]) from None
     finally:
-        loader.dispose()
+        if loader is not None:
+            loader.dispose()
 
 
 def read_yaml(path: str | os.PathLike, shown: str | None = None) -> Document:

@@ -109,19 +109,28 @@ def read_one_port(path: str | os.PathLike) -> TabulatedLoad:
         k = int(np.argmax(bad_ref))
         raise TouchstoneError(f"{name}: reference impedance {z0[k]:g} Ω at {format_hz(freq[k])} must have a "
                               "positive real part")
+    raw_s = np.asarray(ntwk.s[:, 0, 0], dtype=complex)
+    bad = ~np.isfinite(raw_s)
+    if np.any(bad):
+        k = int(np.argmax(bad))
+        raise TouchstoneError(f"{name}: the data at {format_hz(freq[k])} is not a finite reflection")
     with np.errstate(all="ignore"):
         if np.all(z0 == z0[0]) and z0[0].imag == 0.0:
             z_ref = float(z0[0].real)
-            gamma = ntwk.s[:, 0, 0]
+            gamma = raw_s
             if param == "y" and not version2:
-                # scikit-rf multiplies version-1 Y data by R; the format normalises it as Y·R.
-                y_norm = ntwk.y[:, 0, 0] / z_ref  # the figures as written in the file
-                gamma = (1.0 - y_norm) / (1.0 + y_norm)
+                # scikit-rf multiplies version-1 Y data by R (so Y·R = y·R², with y as written); the
+                # format normalises Y to the reference admittance, Y = y / R, so Γ = (1 − y)/(1 + y).
+                y_file = (1.0 - raw_s) / (1.0 + raw_s) / z_ref**2
+                gamma = (1.0 - y_file) / (1.0 + y_file)
         else:
             z_ref = 50.0
-            ntwk = ntwk.copy()
-            ntwk.renormalize(z_ref)
-            gamma = ntwk.s[:, 0, 0]
+            try:
+                ntwk = ntwk.copy()
+                ntwk.renormalize(z_ref)
+            except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+                raise TouchstoneError(f"{name}: cannot renormalise the data to 50 Ω ({_first_line(exc)})") from None
+            gamma = np.asarray(ntwk.s[:, 0, 0], dtype=complex)
     gamma = np.asarray(gamma, dtype=complex)
     bad = ~np.isfinite(gamma)
     if np.any(bad):

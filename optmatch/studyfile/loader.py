@@ -32,7 +32,7 @@ from optmatch.domain.network import Bound, ElementSpec, LengthBasis, Medium, Net
 from optmatch.domain.problem import Problem
 from optmatch.domain.templates import ROLES, STEPPED_Z0_OHM, LengthBound, build_template, role_of
 from optmatch.domain.tolerance import Spread
-from optmatch.errors import OptmatchError, did_you_mean
+from optmatch.errors import OptmatchError, did_you_mean, one_line
 from optmatch.io.safe_yaml import Document, YamlError, read_yaml
 from optmatch.io.touchstone import read_one_port
 from optmatch.studyfile import limits
@@ -74,7 +74,7 @@ class StudyFileError(OptmatchError):
     """A study file with problems; ``problems`` holds one line each, each starting with the file path."""
 
     def __init__(self, problems: Iterable[str]) -> None:
-        self.problems: list[str] = list(problems)
+        self.problems: list[str] = [one_line(p) for p in problems]
         super().__init__("\n".join(self.problems))
 
     def __str__(self) -> str:
@@ -251,13 +251,12 @@ class _Problems:
         return self.doc.line_of(where) if self.doc is not None else None
 
     def add(self, where: str, what: str) -> None:
-        what = " ".join(str(what).split())
         line = self._line(where)
         text = f"{self.shown}:{line}: {where}: {what}" if line else f"{self.shown}: {where}: {what}"
-        self._seen.setdefault(text, line or 0)
+        self._seen.setdefault(one_line(text), line or 0)
 
     def file(self, what: str) -> None:
-        self._seen.setdefault(f"{self.shown}: {' '.join(str(what).split())}", 0)
+        self._seen.setdefault(one_line(f"{self.shown}: {what}"), 0)
 
     def note(self, where: str, what: str) -> None:
         line = self._line(where)
