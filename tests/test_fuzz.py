@@ -9,10 +9,12 @@ explore new ones locally).
 
 from __future__ import annotations
 
+import atexit
 import contextlib
 import io
 import math
 import os
+import shutil
 import tempfile
 from pathlib import Path
 from typing import Any
@@ -34,6 +36,7 @@ def fuzz_settings(n: int) -> settings:
 
 
 WORK = Path(tempfile.mkdtemp(prefix="optmatch-fuzz-"))
+atexit.register(shutil.rmtree, WORK, True)
 WHIP = (Path(__file__).parent / "data" / "whip_invented.s1p").read_bytes()
 (WORK / "whip.s1p").write_bytes(WHIP)
 
