@@ -104,6 +104,6 @@ def test_bad_catalog_is_one_line_per_problem(tmp_path):
     with pytest.raises(CatalogError) as info:
         read_catalog(p)
     probs = info.value.problems
-    assert any(line.startswith(f"{p}: cables.x.vf:") for line in probs)
-    assert any(line.startswith(f"{p}: cables.x.attenuation:") for line in probs)
+    assert any(line.startswith(f"{p}:2: cables.x.vf:") for line in probs)
+    assert any(line.startswith(f"{p}:2: cables.x.attenuation:") for line in probs)
     assert all("\n" not in line for line in probs)

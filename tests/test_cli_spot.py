@@ -71,6 +71,13 @@ def test_unmatchable_double_stub_reports_load_line(capsys):
         (["--load", "60-80", "--freq", "2GHz"], "--load"),
         (["--load", "sixty", "--freq", "2GHz"], "--load"),
         (["--load", "60-j80", "--freq", "2GHz", "--spacing", "45"], "--spacing"),
+        (["--load", "60-j80", "--freq", "146mhz"], "--freq: '146mhz': did you mean 146 MHz?"),
+        (["--load", "60-j80", "--freq", "146"], "--freq: 146 what? write 146MHz"),
+        (["--load", "60-j80", "--freq", "146mHz"], "millihertz"),
+        (["--load", "1e18", "--freq", "146MHz"], "--load: '1e18' is outside the plausible range"),
+        (["--load", "60-j80", "--freq", "146MHz", "--cable", "RG213"], "did you mean 'RG-213-class'?"),
+        (["--load", "60-j80", "--freq", "146MHz", "--cable", "RG-59"], "--cable: RG-59-class is a 75 Ω cable"),
+        (["--load", "60-j80", "--freq", "146MHz", "--cable", "RG-58", "--vf", "0.66"], "give one of them"),
     ],
 )
 def test_bad_input_one_line_exit_2(capsys, args, fragment):
@@ -92,3 +99,41 @@ def test_python_dash_m_entry_point():
     # Quarter-wave transformer for a real load: Z1 = √(Z0·RL) (Pozar, 4th ed., sec. 2.5)
     z1 = max(el["z0_ohm"] for el in qw["solutions"][0]["elements"])
     assert z1 == pytest.approx((50 * 100) ** 0.5)
+
+
+def test_velocity_factor_from_cable_or_free_space_warning(capsys):
+    free = _spot_json(capsys, "--load", "60-j80", "--freq", "146MHz")
+    assert free["velocity_factor"] == 1.0 and free["velocity_factor_source"] == "free space"
+    assert "FREE-SPACE" in free["warnings"][0]
+    coax = _spot_json(capsys, "--load", "60-j80", "--freq", "146MHz", "--cable", "RG-58")
+    # solid-polyethylene coax: VF about 0.66 (common practice, no source); the catalog's RG-58 class says so
+    assert coax["velocity_factor"] == pytest.approx(0.66) and coax["velocity_factor_source"] == "cable RG-58-class"
+    assert coax["warnings"] == []
+    el_free = _topology(free, "shunt_stub")["solutions"][0]["elements"][0]
+    el_coax = _topology(coax, "shunt_stub")["solutions"][0]["elements"][0]
+    assert el_coax["length_m"] == pytest.approx(0.66 * el_free["length_m"])  # identity: ℓ = VF · λ0 · fraction
+    # The table shows the warning above everything else when neither is given.
+    assert main(["spot", "--load", "60-j80", "--freq", "146MHz"]) == 0
+    out = capsys.readouterr().out
+    assert out.lstrip().startswith("warning: no --vf or --cable given: the mm column is a FREE-SPACE length")
+    assert main(["spot", "--load", "60-j80", "--freq", "146MHz", "--vf", "0.66"]) == 0
+    assert "FREE-SPACE" not in capsys.readouterr().out
+
+
+def test_a_bug_is_exit_3_with_traceback_and_a_report_line(capsys, monkeypatch):
+    import optmatch.cli.spot as spot
+
+    def broken(*args, **kwargs):
+        raise ValueError("operands could not be broadcast together")  # what numpy would raise
+
+    monkeypatch.setattr(spot, "spot_document", broken)
+    assert main(["spot", "--load", "60-j80", "--freq", "146MHz"]) == 3
+    err = capsys.readouterr().err
+    assert "Traceback" in err and "ValueError: operands could not be broadcast together" in err
+    assert err.strip().splitlines()[-1].startswith("optmatch: internal error: this is a bug in optmatch")
+
+
+def test_file_problem_is_exit_2_one_line(capsys, tmp_path):
+    assert main(["cables", "--catalog", str(tmp_path / "none.yaml")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert err == [f"optmatch: error: {tmp_path / 'none.yaml'}: catalog file not found"]

@@ -242,3 +242,84 @@ def test_file_without_touchstone_extension_is_an_error(tmp_path):
     with pytest.raises(TouchstoneError) as err:
         read_one_port(path)
     assert str(path) in str(err.value) and ".s1p" in str(err.value)
+
+
+# ---------------------------------------------------------------- hostile and unusual Touchstone files
+
+
+def _ts(tmp_path, name: str, text: str):
+    p = tmp_path / name
+    p.write_text(text, encoding="ascii")
+    return p
+
+
+def test_reference_resistance_zero_or_negative_refused(tmp_path):
+    for r in ("0", "-50"):
+        p = _ts(tmp_path, f"r{r}.s1p", f"! invented\n# MHz S RI R {r}\n400 0.1 0.2\n410 0.1 0.3\n")
+        with pytest.raises(TouchstoneError) as info:
+            read_one_port(p)
+        assert str(info.value) == (f"{p}: the option line's reference resistance R {r} must be a positive "
+                                   "number of ohms")
+
+
+def test_active_load_refused_naming_the_first_frequency(tmp_path):
+    # |S11| = 1.5 at 410 MHz: a passive load cannot reflect more than it receives (physical identity)
+    p = _ts(tmp_path, "active.s1p", "! invented\n# MHz S MA R 50\n400 0.5 10\n410 1.5 20\n420 1.2 30\n")
+    with pytest.raises(TouchstoneError) as info:
+        read_one_port(p)
+    assert str(info.value).startswith(f"{p}: an active load, |S11| = 1.5 at 410 MHz")
+
+
+def test_z_format_file_read_as_scikit_rf_reads_it(tmp_path):
+    # Version-1 Z data is normalised to R: 1.2 − j1.6 at R 50 is 60 − j80 Ω (Pozar's Example 5.2 load)
+    p = _ts(tmp_path, "z.s1p", "! invented\n# MHz Z RI R 50\n400 1.2 -1.6\n410 1.0 0.5\n420 0.4 0.1\n")
+    ours = read_one_port(p)
+    ref = skrf.Network(str(p))  # scikit-rf as the independent reader of the same file
+    np.testing.assert_allclose(ours(ours.freq_hz), ref.z[:, 0, 0], rtol=1e-12)
+    assert ours(np.array([400e6]))[0] == pytest.approx(60 - 80j)
+
+
+def test_y_format_files(tmp_path):
+    # Version 2.0: Y data in siemens, not normalised; scikit-rf reads it as written.
+    v2 = _ts(tmp_path, "y2.s1p", "! invented\n[Version] 2.0\n# MHz Y RI R 50\n[Number of Ports] 1\n"
+             "[Number of Frequencies] 2\n[Network Data]\n400 0.012 -0.016\n410 0.016 -0.008\n[End]\n")
+    ours = read_one_port(v2)
+    ref = skrf.Network(str(v2))  # scikit-rf as the independent reader
+    np.testing.assert_allclose(ours(ours.freq_hz), ref.z[:, 0, 0], rtol=1e-12)
+    assert ours(np.array([400e6]))[0] == pytest.approx(1 / (0.012 - 0.016j))  # identity Z = 1/Y: 30 + j40 Ω
+    # Version 1: Y data is normalised to the reference admittance 1/R, so y = 1 is a matched load (Γ = 0)
+    # and y = 0.6 − j0.8 is Y = (0.6 − j0.8)/50 S, Z = 30 + j40 Ω (physical identities of the format).
+    # scikit-rf 2.2 multiplies version-1 Y data by R instead of dividing; we follow the format.
+    v1 = _ts(tmp_path, "y1.s1p", "! invented\n# MHz Y RI R 50\n400 1.0 0.0\n410 0.6 -0.8\n")
+    got = read_one_port(v1)
+    assert abs(got.gamma[0]) < 1e-12
+    assert got(np.array([410e6]))[0] == pytest.approx(30 + 40j)
+    # the same load written as a version-1 Z file reads the same (z = 1/y = 0.6 + j0.8)
+    z1 = _ts(tmp_path, "z1.s1p", "! invented\n# MHz Z RI R 50\n400 1.0 0.0\n410 0.6 0.8\n")
+    np.testing.assert_allclose(read_one_port(z1).gamma, got.gamma, atol=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("name", "content", "fragment"),
+    [
+        ("empty.s1p", "", "file is empty"),
+        ("text.txt", "# MHz S RI R 50\n400 0.1 0.2\n", "not a Touchstone file name"),
+        ("two.s2p", "# MHz S RI R 50\n400 0.1 0.2 0.3 0.4 0.5 0.6 0.7 0.8\n", "has 2 ports"),
+        ("junk.s1p", "# MHz S RI R 50\n400 x y\n", "not a readable Touchstone file"),
+        ("nan.s1p", "# MHz S RI R 50\n400 nan 0.2\n410 0.1 0.2\n", ""),
+        ("latin.s1p", "! caf\xe9\n# MHz S RI R 50\n400 0.1 0.2\n", "other than ASCII"),
+    ],
+)
+def test_every_touchstone_problem_names_the_file(tmp_path, name, content, fragment):
+    p = tmp_path / name
+    p.write_bytes(content.encode("latin-1"))
+    with pytest.raises(TouchstoneError) as info:
+        read_one_port(p)
+    msg = str(info.value)
+    assert msg.startswith(f"{p}: ") and fragment in msg and "\n" not in msg
+
+
+def test_load_errors_are_bad_input_not_bugs():
+    from optmatch.errors import OptmatchError
+
+    assert issubclass(LoadError, OptmatchError) and issubclass(TouchstoneError, OptmatchError)

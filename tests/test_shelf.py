@@ -151,7 +151,7 @@ def test_shelf_errors_name_the_key(tmp_path):
           elements:
             - line: {length: 45deg, cut: {step: 5mm}}
         """)
-    assert probs == [f"{tmp_path / 'study.yaml'}: network.elements[0].line: cut and stock need a cable "
+    assert probs == [f"{tmp_path / 'study.yaml'}:8: network.elements[0].line: cut and stock need a cable "
                      "(cable: NAME or a list of names)"]
 
 

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import argparse
 import json
-import sys
 from pathlib import Path
 
+from optmatch.cli.check import run_check
 from optmatch.cli.terminal import console, progress, table
-from optmatch.studyfile.loader import StudyFileError, check_study, load_study
+from optmatch.studyfile.loader import StudyFileError, load_study
 
 EXIT_FAILS_MASK = 1
 
@@ -28,16 +28,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--json", action="store_true", help="print summary.json to stdout at the end")
     p.add_argument("--quiet", action="store_true", help="no progress bar or table")
     p.set_defaults(handler=run_run)
-
-
-def run_check(args: argparse.Namespace) -> int:
-    problems = check_study(args.file)
-    if problems:
-        for line in problems:
-            print(line, file=sys.stderr)
-        return 2
-    print(f"{args.file}: ok")
-    return 0
 
 
 def print_designs(doc: dict) -> None:

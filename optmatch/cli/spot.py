@@ -8,6 +8,8 @@ import json
 from optmatch.cli.terminal import console, table
 from optmatch.domain.closed_form import SpotResult, all_solutions
 from optmatch.units import (
+    InputError,
+    format_hz,
     length_views,
     parse_complex,
     parse_frequency,
@@ -24,7 +26,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--load", required=True, help="load impedance, e.g. 60-80j, 60-j80 or '60 - j80' (Ω)")
     p.add_argument("--freq", required=True, help="design frequency, e.g. 2GHz")
     p.add_argument("--system", default="50", help="system impedance (Ω, real), default 50")
-    p.add_argument("--vf", default="1.0", help="velocity factor for physical lengths, default 1.0")
+    p.add_argument("--vf", default=None, help="velocity factor of the line, for the mm column (e.g. 0.66)")
+    p.add_argument("--cable", default=None, metavar="NAME",
+                   help="a catalog cable (optmatch cables) whose velocity factor the mm column uses; its "
+                        "trade designation will do (RG-58 finds RG-58-class)")
     p.add_argument("--spacing", default="0.125wl", help="double-stub spacing (e.g. 45deg, 0.125wl, 30mm)")
     p.add_argument("--load-line", default="0wl", help="line between load and first double stub")
     p.add_argument("--json", action="store_true", help="print one JSON document instead of a table")
@@ -73,20 +78,52 @@ def spot_document(zl: complex, f_hz: float, z0: float, vf: float, spacing_wl: fl
     }
 
 
+FREE_SPACE_WARNING = ("no --vf or --cable given: the mm column is a FREE-SPACE length (velocity factor 1.0); "
+                      "in coax it is shorter (solid polyethylene about 0.66, foam about 0.8), so a piece cut to "
+                      "it is far too long")
+
+
+def _velocity_factor(args: argparse.Namespace, z0: float) -> tuple[float, str]:
+    """(velocity factor, where it came from: 'given', 'cable NAME' or 'free space')."""
+    if args.vf is not None and args.cable is not None:
+        raise InputError("--vf and --cable both set the velocity factor; give one of them")
+    if args.vf is not None:
+        return parse_velocity_factor(args.vf, "--vf"), "given"
+    if args.cable is None:
+        return 1.0, "free space"
+    from optmatch.io.catalog import shipped_catalog
+    from optmatch.studyfile.shelf import lookup_cable, unknown_cable
+
+    catalog = shipped_catalog()
+    name, _ = lookup_cable(args.cable, catalog)
+    if name is None:
+        raise InputError(f"--cable: {unknown_cable(args.cable, catalog)}")
+    cable = catalog[name]
+    if abs(cable.z0_ohm - z0) > 1e-9 * z0:
+        raise InputError(f"--cable: {name} is a {cable.z0_ohm:g} Ω cable but the system is {z0:g} Ω; the "
+                         f"solutions here use lines of the system impedance (give --system {cable.z0_ohm:g} "
+                         "or --vf)")
+    return cable.vf, f"cable {name}"
+
+
 def run_spot(args: argparse.Namespace) -> int:
     zl = parse_complex(args.load, "--load")
     f_hz = parse_frequency(args.freq, "--freq")
     z0 = parse_impedance_real(args.system, "--system")
-    vf = parse_velocity_factor(args.vf, "--vf")
+    vf, vf_source = _velocity_factor(args, z0)
     spacing = _wavelengths(args.spacing, "--spacing", f_hz, vf)
     load_line = _wavelengths(args.load_line, "--load-line", f_hz, vf)
     doc = spot_document(zl, f_hz, z0, vf, spacing, load_line)
+    doc["velocity_factor_source"] = vf_source
+    doc["warnings"] = [FREE_SPACE_WARNING] if vf_source == "free space" else []
     if args.json:
         print(json.dumps(doc, indent=2))
         return 0
     out = console()
-    out.print(f"Load {zl.real:g} {'+' if zl.imag >= 0 else '-'} j{abs(zl.imag):g} Ω at {f_hz / 1e6:g} MHz, "
-              f"system {z0:g} Ω, velocity factor {vf:g}")
+    if vf_source == "free space":
+        out.print(f"[bold red]warning:[/] [bold]{FREE_SPACE_WARNING}[/]")
+    out.print(f"Load {zl.real:g} {'+' if zl.imag >= 0 else '-'} j{abs(zl.imag):g} Ω at {format_hz(f_hz)}, "
+              f"system {z0:g} Ω, velocity factor {vf:g} ({vf_source})")
     tab = table("topology", "branch", "element", "end", "Z0 Ω", "λ", "deg", "ns", "mm")
     notes = []
     for topo in doc["topologies"]:
@@ -109,5 +146,5 @@ def run_spot(args: argparse.Namespace) -> int:
     out.print(tab)
     for note in notes:
         out.print(note)
-    out.print("Lengths are from the load outwards; mm uses the velocity factor given.")
+    out.print(f"Lengths are from the load outwards; mm uses velocity factor {vf:g} ({vf_source}).")
     return 0

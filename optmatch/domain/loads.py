@@ -11,11 +11,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from optmatch.errors import OptmatchError
+from optmatch.units import format_hz
+
 LoadModel = Callable[[np.ndarray], np.ndarray]
 """Any callable ``freq_hz -> z_ohm`` (complex, same shape)."""
 
 
-class LoadError(ValueError):
+class LoadError(OptmatchError, ValueError):
     """A load description or its frequency grid is unusable (one-line message)."""
 
 
@@ -102,10 +105,7 @@ def parallel_rlc(
 
 
 def _fmt_hz(f: float) -> str:
-    for scale, unit in ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz")):
-        if abs(f) >= scale:
-            return f"{f / scale:.6g} {unit}"
-    return f"{f:.6g} Hz"
+    return format_hz(f)
 
 
 @dataclass(frozen=True, eq=False)

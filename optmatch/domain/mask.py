@@ -17,13 +17,15 @@ DEFAULT_POINTS = 41
 @dataclass(frozen=True)
 class Segment:
     """One band of the mask: ``f_lo``..``f_hi`` (Hz) must show at least ``min_rl_db`` of return loss;
-    the network may lose at most ``max_loss_db`` (None = no limit)."""
+    the network may lose at most ``max_loss_db`` (None = no limit).  ``vswr`` is the requirement as
+    the study gave it when it was a VSWR (``min_rl_db`` is then its return loss), for display."""
 
     f_lo: float
     f_hi: float
     min_rl_db: float
     max_loss_db: float | None = None
     points: int = DEFAULT_POINTS
+    vswr: float | None = None
 
 
 @dataclass(frozen=True)

@@ -11,6 +11,7 @@ from dataclasses import dataclass
 from typing import Literal
 
 from optmatch.domain.network import Bound, ElementSpec, End, LengthBasis, Medium
+from optmatch.errors import OptmatchError
 
 TemplateName = Literal["single_shunt_stub", "single_series_stub", "double_stub", "triple_stub", "stepped_line"]
 TEMPLATES: tuple[str, ...] = (
@@ -21,6 +22,18 @@ DEFAULT_SPACING_WL = 0.125  # stub spacing of double and triple stubs, wavelengt
 DEFAULT_MAX_LENGTH_WL = 0.5  # free lengths run from 0 to this, wavelengths at the reference
 DEFAULT_SECTIONS = 3  # stepped line
 STEPPED_Z0_OHM = (10.0, 250.0)  # free Z0 range of stepped-line sections unless given
+
+
+class TemplateError(OptmatchError, ValueError):
+    """A template that cannot be built as asked (unknown name, no sections, ...)."""
+
+
+ROLES = ("lines", "stubs")  # the two roles of a template's elements, for per-role shelf keys
+
+
+def role_of(element: ElementSpec) -> str:
+    """``lines`` for a series line a template makes (load line, spacing, section), else ``stubs``."""
+    return "lines" if element.kind == "line" else "stubs"
 
 
 @dataclass(frozen=True)
@@ -69,10 +82,10 @@ def build_template(
     range instead (Ω); ``end``: stub termination; ``spacing``: fixed stub spacing of double and
     triple stubs (default 0.125 λ); ``max_length``: upper end of every free length (default
     0.5 λ); ``sections``: stepped-line sections, each fixed at a quarter wave at ``f_ref_hz``.
-    Raises ``ValueError`` for an unknown name or a non-positive count.
+    Raises :class:`TemplateError` for an unknown name or a non-positive count.
     """
     if f_ref_hz <= 0:
-        raise ValueError(f"reference frequency must be positive, got {f_ref_hz} Hz")
+        raise TemplateError(f"reference frequency must be positive, got {f_ref_hz} Hz")
     spacing = spacing or wavelengths(DEFAULT_SPACING_WL, f_ref_hz)
     free = free_up_to(max_length or wavelengths(DEFAULT_MAX_LENGTH_WL, f_ref_hz))
 
@@ -92,7 +105,7 @@ def build_template(
         return tuple(out)
     if name == "stepped_line":
         if sections < 1:
-            raise ValueError(f"a stepped line needs at least one section, got {sections}")
+            raise TemplateError(f"a stepped line needs at least one section, got {sections}")
         quarter = wavelengths(0.25, f_ref_hz)
         return tuple(_line(quarter, media, z0_free, f"section {k + 1}") for k in range(sections))
-    raise ValueError(f"unknown template {name!r} (choose from {', '.join(TEMPLATES)})")
+    raise TemplateError(f"unknown template {name!r} (choose from {', '.join(TEMPLATES)})")

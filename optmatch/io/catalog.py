@@ -19,18 +19,17 @@ Every problem is reported as one line naming the file and the key (``CatalogErro
 
 from __future__ import annotations
 
+import functools
 import math
 import os
 from collections.abc import Mapping
 from importlib import resources
-from pathlib import Path
 from typing import Any
-
-import yaml
 
 from optmatch.domain.cables import Cable, merge_catalogs
 from optmatch.domain.line_loss import LineLossError, fit_loss_two_point
-from optmatch.errors import OptmatchError
+from optmatch.errors import OptmatchError, one_line
+from optmatch.io.safe_yaml import Document, YamlError, parse_yaml, read_yaml
 from optmatch.units import parse_frequency, parse_impedance_real, parse_number, parse_velocity_factor
 
 ENTRY_KEYS = ("description", "z0", "z0_tolerance", "vf", "vf_tolerance", "attenuation", "max_voltage",
@@ -42,8 +41,11 @@ class CatalogError(OptmatchError):
     """A catalog with problems; ``problems`` holds one line each."""
 
     def __init__(self, problems: list[str]) -> None:
-        self.problems = list(problems)
+        self.problems = [one_line(p) for p in problems]
         super().__init__("\n".join(self.problems))
+
+    def __str__(self) -> str:
+        return "\n".join(self.problems or [])
 
 
 def _positive(value: Any, what: str, allow_zero: bool = False) -> float:
@@ -144,37 +146,48 @@ def cables_from_mapping(data: Any, where: str) -> tuple[dict[str, Cable], list[s
     return out, probs
 
 
-def _parse_text(text: str, shown: str) -> dict[str, Cable]:
-    try:
-        raw = yaml.safe_load(text)
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        where = f"line {mark.line + 1}: " if mark is not None else ""
-        raise CatalogError([f"{shown}: {where}YAML syntax error"]) from None
+def _cables_of(doc: Document, shown: str) -> dict[str, Cable]:
+    raw = doc.data
     if not isinstance(raw, Mapping) or set(raw) != {"cables"}:
         raise CatalogError([f"{shown}: expected one top-level key 'cables' holding the cable entries"])
     cables, probs = cables_from_mapping(raw["cables"], "cables")
     if probs:
-        raise CatalogError([f"{shown}: {p}" for p in probs])
+        lines = []
+        for p in probs:
+            line = doc.line_of(p.partition(": ")[0])
+            lines.append(f"{shown}:{line}: {p}" if line else f"{shown}: {p}")
+        raise CatalogError(lines)
     return cables
 
 
-def shipped_catalog() -> dict[str, Cable]:
-    """The catalog shipped in the package (optmatch/data/cables.yaml)."""
+def _parse_text(text: str, shown: str) -> dict[str, Cable]:
+    try:
+        doc = parse_yaml(text, shown)
+    except YamlError as exc:
+        raise CatalogError(exc.problems or [str(exc)]) from None
+    return _cables_of(doc, shown)
+
+
+@functools.cache
+def _shipped() -> dict[str, Cable]:
     text = resources.files("optmatch").joinpath("data/cables.yaml").read_text(encoding="utf-8")
     return _parse_text(text, "optmatch/data/cables.yaml")
 
 
+def shipped_catalog() -> dict[str, Cable]:
+    """The catalog shipped in the package (optmatch/data/cables.yaml); read once per process (a new
+    dict each call; the cables themselves are frozen)."""
+    return dict(_shipped())
+
+
 def read_catalog(path: str | os.PathLike) -> dict[str, Cable]:
-    """A user's catalog file; raises :class:`CatalogError` with one line per problem."""
-    p = Path(path)
-    if not p.is_file():
-        raise CatalogError([f"{path}: catalog file not found"])
+    """A user's catalog file; raises :class:`CatalogError` with one line per problem, each naming the file."""
     try:
-        text = p.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise CatalogError([f"{path}: cannot read ({exc})"]) from None
-    return _parse_text(text, str(path))
+        doc = read_yaml(path)
+    except YamlError as exc:
+        raise CatalogError([line.replace(": file not found", ": catalog file not found")
+                            for line in exc.problems or []]) from None
+    return _cables_of(doc, str(path))
 
 
 def load_catalog(*extra_files: str | os.PathLike) -> dict[str, Cable]:

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 import signal
 import subprocess
 import sys
@@ -92,9 +93,10 @@ def find_study_files(folder: Path) -> list[Path]:
 
 
 def one_line(problems: list[str], path: Path) -> str:
-    """Every problem of one file on one line, the file named once."""
-    prefix = f"{path}: "
-    return prefix + "; ".join(p.removeprefix(prefix) for p in problems)
+    """Every problem of one file on one line, the file named once (``file:LINE: ...`` as ``line LINE: ...``)."""
+    shown = str(path)
+    rest = [re.sub(r"^:(\d+): ", r"line \1: ", p.removeprefix(shown)).removeprefix(": ") for p in problems]
+    return f"{shown}: " + "; ".join(rest)
 
 
 def read_entries(files: list[Path]) -> list[StudyEntry]:

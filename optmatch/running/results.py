@@ -16,6 +16,7 @@ from optmatch import __version__
 from optmatch.domain.design import Design, describe, performance
 from optmatch.domain.tolerance import monte_carlo
 from optmatch.io.atomic import write_json_atomic, write_text_atomic
+from optmatch.io.paths import child_path
 from optmatch.outputs.cutlist import cut_list_csv, cut_list_markdown
 from optmatch.outputs.network_export import export_touchstone
 from optmatch.outputs.plots import plot_pareto, plot_return_loss, plot_smith
@@ -28,8 +29,8 @@ PLOTTED_DESIGNS = 3
 
 
 def results_dir(study: Study, out_root: Path) -> Path:
-    """``<out_root>/<study name>``."""
-    return Path(out_root) / study.problem.name
+    """``<out_root>/<study name>``, refused unless it lies inside ``out_root`` (io/paths.py)."""
+    return child_path(out_root, study.problem.name)
 
 
 def _mask_doc(study: Study) -> list[dict]:

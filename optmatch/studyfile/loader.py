@@ -1,8 +1,10 @@
 """Read a study file (YAML), validate it and resolve it into a :class:`~optmatch.domain.problem.Problem`.
 
 Every problem found is collected and reported at once as a :class:`StudyFileError`, one line per
-problem, each line starting with the file path and the key path, e.g.
-``configs/demo.yaml: mask.segments[0].from: must be positive, got '-3GHz'``.
+problem, each line ``file:line: key.path: problem`` with the YAML line of the key, e.g.
+``configs/demo.yaml:14: mask.segments[0].from: 146 what? write 146MHz``.  Structure and units
+(the schema), names of cables, allowances and templates, stock, referenced files (Touchstone,
+catalog) and the bounds on work are all checked in one pass.
 
 Units after resolution: Hz, Ω, s (delay), m (physical length), dB, seconds of wall time.
 """
@@ -20,21 +22,23 @@ from pathlib import Path
 from typing import Any, Literal, get_args
 
 import numpy as np
-import yaml
 from pydantic import BaseModel, TypeAdapter, ValidationError
 
 from optmatch.domain import loads
 from optmatch.domain.cables import Cable
+from optmatch.domain.loads import TabulatedLoad
 from optmatch.domain.mask import Grid, Segment, build_grid
 from optmatch.domain.network import Bound, ElementSpec, LengthBasis, Medium, NetworkSpec
 from optmatch.domain.problem import Problem
-from optmatch.domain.templates import STEPPED_Z0_OHM, LengthBound, build_template
+from optmatch.domain.templates import ROLES, STEPPED_Z0_OHM, LengthBound, build_template, role_of
 from optmatch.domain.tolerance import Spread
-from optmatch.errors import OptmatchError
+from optmatch.errors import OptmatchError, did_you_mean, one_line
+from optmatch.io.safe_yaml import Document, YamlError, read_yaml
 from optmatch.io.touchstone import read_one_port
+from optmatch.studyfile import limits
 from optmatch.studyfile.schema import (
     BRANCH_MARK,
-    NAME_PATTERN,
+    ELEMENT_KINDS,
     SECTION_MODELS,
     Frequency,
     LengthRange,
@@ -44,26 +48,37 @@ from optmatch.studyfile.schema import (
     MaskModel,
     NetworkModel,
     Ohms,
+    PartValue,
     SearchModel,
-    SIValue,
     StubModel,
     StudyModel,
     ToleranceModel,
     Z0Range,
+    study_name_problem,
 )
-from optmatch.studyfile.shelf import ShelfContext, shelf_context, shelf_element, uses_shelf
-from optmatch.units import Length
+from optmatch.studyfile.shelf import (
+    ShelfContext,
+    catalog_in_force,
+    find_cables,
+    lookup_cable,
+    shelf_context,
+    shelf_element,
+    unknown_allowance,
+    unknown_cable,
+    uses_shelf,
+)
+from optmatch.units import MAX_DELAY_S, Length, format_hz
 
 
 class StudyFileError(OptmatchError):
     """A study file with problems; ``problems`` holds one line each, each starting with the file path."""
 
     def __init__(self, problems: Iterable[str]) -> None:
-        self.problems: list[str] = list(problems)
+        self.problems: list[str] = [one_line(p) for p in problems]
         super().__init__("\n".join(self.problems))
 
     def __str__(self) -> str:
-        return "\n".join(self.problems)
+        return "\n".join(self.problems or [])
 
 
 @dataclass(frozen=True)
@@ -96,59 +111,23 @@ class Study:
     cables: dict[str, Cable] = field(default_factory=dict)  # catalog in force (shipped + the study's own)
     drive_w: float | None = None  # available source power for the power check (W)
     spread: Spread = Spread()  # build tolerances for the yield Monte Carlo
+    notes: tuple[str, ...] = ()  # what the loader read into the file (e.g. a bare cable designation's class)
 
 
 # ---------------------------------------------------------------- YAML
 
 
-class _StrictLoader(yaml.SafeLoader):
-    """Safe YAML loader that rejects a key given twice in one mapping."""
-
-
-def _construct_mapping(loader: _StrictLoader, node: yaml.MappingNode, deep: bool = False) -> dict:
-    seen: dict[Any, yaml.Node] = {}
-    for key_node, _ in node.value:
-        key = loader.construct_object(key_node, deep=deep)
-        try:
-            duplicate = key in seen
-        except TypeError:
-            continue  # unhashable key: the base constructor reports it
-        if duplicate:
-            raise yaml.constructor.ConstructorError(
-                None, None, f"key {key!r} is given twice", key_node.start_mark)
-        seen[key] = key_node
-    return yaml.SafeLoader.construct_mapping(loader, node, deep=deep)
-
-
-_StrictLoader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _construct_mapping)
-
-
-def _read_yaml(path: Path, shown: str) -> dict:
-    if not path.exists():
-        raise StudyFileError([f"{shown}: file not found"])
-    if not path.is_file():
-        raise StudyFileError([f"{shown}: not a file"])
+def _read_yaml(path: Path, shown: str) -> Document:
     try:
-        text = path.read_text(encoding="utf-8")
-    except UnicodeDecodeError:
-        raise StudyFileError([f"{shown}: not a text file (expected UTF-8 YAML)"]) from None
-    except OSError as exc:
-        raise StudyFileError([f"{shown}: cannot read ({exc.strerror or exc})"]) from None
-    try:
-        raw = yaml.load(text, Loader=_StrictLoader)  # noqa: S506 - a SafeLoader subclass
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark or exc.context_mark
-        where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark is not None else ""
-        what = " ".join(str(exc.problem or exc.context or "unreadable YAML").split())
-        raise StudyFileError([f"{shown}: {where}YAML syntax error: {what}"]) from None
-    except yaml.YAMLError as exc:
-        raise StudyFileError([f"{shown}: YAML syntax error: {' '.join(str(exc).split())}"]) from None
-    if raw is None:
+        doc = read_yaml(path, shown)
+    except YamlError as exc:
+        raise StudyFileError(exc.problems or [str(exc)]) from None
+    if doc.data is None:
         raise StudyFileError([f"{shown}: file is empty"])
-    if not isinstance(raw, dict):
+    if not isinstance(doc.data, dict):
         raise StudyFileError([f"{shown}: expected keys (name, load, mask, network, ...) at the top level, "
-                              f"found a {type(raw).__name__}"])
-    return raw
+                              f"found a {type(doc.data).__name__}"])
+    return doc
 
 
 # ---------------------------------------------------------------- pydantic errors
@@ -206,92 +185,135 @@ def _message(err: dict) -> str:
         return str(ctx["error"])
     if kind == "extra_forbidden":
         allowed = _allowed_keys(tuple(err["loc"]))
-        return f"unknown key (allowed: {', '.join(allowed)})" if allowed else "unknown key"
+        key = err["loc"][-1] if err["loc"] else ""
+        hint = did_you_mean(str(key), allowed, quote=True) if allowed else ""
+        return f"unknown key{hint} (allowed: {', '.join(allowed)})" if allowed else "unknown key"
     if kind == "missing":
         return "required key is missing"
     if kind == "literal_error":
-        return f"{_short(given)} is not allowed; expected {ctx.get('expected')}"
+        options = re.findall(r"'([^']*)'", str(ctx.get("expected", "")))
+        hint = did_you_mean(given, options, quote=True) if isinstance(given, str) else ""
+        return f"{_short(given)} is not allowed; expected {ctx.get('expected')}{hint}"
     if kind in ("int_type", "int_from_float", "int_parsing"):
         return f"expected a whole number, got {_short(given)}"
-    if kind in ("greater_than_equal", "greater_than"):
-        sign = ">=" if kind == "greater_than_equal" else ">"
-        limit = ctx.get("ge", ctx.get("gt"))
-        return f"must be {sign} {limit}, got {_short(given)}"
+    if kind in ("greater_than_equal", "greater_than", "less_than_equal", "less_than"):
+        sign = {"greater_than_equal": ">=", "greater_than": ">", "less_than_equal": "<=", "less_than": "<"}[kind]
+        limit = ctx.get("ge", ctx.get("gt", ctx.get("le", ctx.get("lt"))))
+        return f"must be {sign} {limit:,}, got {_short(given)}" if isinstance(limit, int) else \
+            f"must be {sign} {limit}, got {_short(given)}"
     if kind in ("model_type", "model_attributes_type", "dict_type"):
         return f"expected keys and values, got {_short(given)}"
     if kind == "list_type":
         return f"expected a list, got {_short(given)}"
     if kind == "too_short":
         return "needs at least one entry"
+    if kind == "too_long":
+        return f"at most {ctx.get('max_length')} entries (got {ctx.get('actual_length')})"
+    if kind == "string_too_long":
+        return f"at most {ctx.get('max_length')} characters"
     if kind == "string_type":
         return f"expected text, got {_short(given)}"
+    if kind == "bool_type":
+        return f"expected true or false, got {_short(given)}"
     return f"{err['msg']} (got {_short(given)})"
 
 
-def _pydantic_problems(shown: str, exc: ValidationError, prefix: tuple = ()) -> list[str]:
-    lines = []
+def _pydantic_problems(probs: _Problems, exc: ValidationError, prefix: tuple = ()) -> None:
     for err in exc.errors(include_url=False):
         loc = prefix + tuple(err["loc"])
         if err["type"] == "invalid_key":  # a key that YAML read as a number, date or boolean
             where = key_path(loc[:-1])
-            what = f"key {loc[-1]!r} is not a name (write it as text)" if loc else "keys must be text"
-            lines.append(f"{shown}: {where}: {what}" if where else f"{shown}: {what}")
+            what = f"key {_short(loc[-1])} is not a name (write it as text)" if loc else "keys must be text"
+            probs.add(where, what) if where else probs.file(what)
             continue
         where = key_path(loc)
-        lines.append(f"{shown}: {where}: {_message(err)}" if where else f"{shown}: {_message(err)}")
-    return lines
+        probs.add(where, _message(err)) if where else probs.file(_message(err))
 
 
 # ---------------------------------------------------------------- resolution
 
 
 class _Problems:
-    """Collects one-line problems for one file."""
+    """Collects one-line problems for one file, each with the YAML line of its key; no duplicates."""
 
-    def __init__(self, shown: str) -> None:
+    def __init__(self, shown: str, doc: Document | None = None) -> None:
         self.shown = shown
-        self.lines: list[str] = []
+        self.doc = doc
+        self._seen: dict[str, int] = {}  # line text -> YAML line (0 when none)
+        self.notes: dict[str, None] = {}
+
+    @property
+    def lines(self) -> list[str]:
+        """Every problem, in the order of the file (problems without a line first)."""
+        return [text for text, _ in sorted(self._seen.items(), key=lambda kv: kv[1])]
+
+    def _line(self, where: str) -> int | None:
+        return self.doc.line_of(where) if self.doc is not None else None
 
     def add(self, where: str, what: str) -> None:
-        self.lines.append(f"{self.shown}: {where}: {what}")
+        line = self._line(where)
+        text = f"{self.shown}:{line}: {where}: {what}" if line else f"{self.shown}: {where}: {what}"
+        self._seen.setdefault(one_line(text), line or 0)
+
+    def file(self, what: str) -> None:
+        self._seen.setdefault(one_line(f"{self.shown}: {what}"), 0)
+
+    def note(self, where: str, what: str) -> None:
+        line = self._line(where)
+        self.notes[f"{self.shown}:{line}: {where}: {what}" if line else f"{self.shown}: {where}: {what}"] = None
 
     def guard(self, where: str, fn: Callable[[], Any]) -> Any:
-        """Run ``fn``; a ValueError becomes a problem at ``where`` and the result is None."""
+        """Run ``fn``; an OptmatchError (bad input) becomes a problem at ``where`` and the result is None.
+
+        Any other exception is a bug and propagates."""
         try:
             return fn()
-        except (ValueError, OptmatchError) as exc:
-            self.add(where, " ".join(str(exc).split()))
+        except OptmatchError as exc:
+            for line in exc.problems or [str(exc)]:
+                self.add(where, line)
             return None
 
 
 def _grid(mask: MaskModel) -> Grid:
-    segs = [Segment(f_lo=s.from_, f_hi=s.to, min_rl_db=s.return_loss, max_loss_db=s.max_loss,
-                    points=s.points if s.points is not None else mask.points) for s in mask.segments]
+    segs = [Segment(f_lo=s.from_, f_hi=s.to, min_rl_db=s.min_rl_db, max_loss_db=s.max_loss,
+                    points=s.points if s.points is not None else mask.points, vswr=s.vswr)
+            for s in mask.segments]
     return build_grid(segs)
 
 
-def _zload(load: LoadModel, grid: Grid | None, study_dir: Path, probs: _Problems) -> tuple[np.ndarray | None, bytes]:
-    """Load impedance on the grid (Ω) and the bytes of any Touchstone file (for the digest)."""
-    if load.touchstone is not None:
-        where = "load.touchstone"
-        ts_path = Path(load.touchstone)
-        if not ts_path.is_absolute():
-            ts_path = study_dir / ts_path
-        tab = probs.guard(where, lambda: read_one_port(ts_path))
-        if tab is None:
-            return None, b""
-        data = ts_path.read_bytes()
-        if grid is None:
-            return None, data
-        return probs.guard(where, lambda: tab(grid.freq)), data
-    if grid is None:
+def _grid_points(mask: MaskModel) -> int:
+    """Grid points the mask asks for, before merging shared end points (an upper bound)."""
+    return sum(1 if s.from_ == s.to else (s.points if s.points is not None else mask.points) for s in mask.segments)
+
+
+def _touchstone(raw: dict, study_dir: Path, probs: _Problems) -> tuple[TabulatedLoad | None, bytes]:
+    """The measured load a study names (read and checked even when other keys are wrong)."""
+    load = raw.get("load")
+    name = load.get("touchstone") if isinstance(load, dict) else None
+    if not isinstance(name, str) or not name.strip():
         return None, b""
+    ts_path = Path(name)
+    if not ts_path.is_absolute():
+        ts_path = study_dir / ts_path
+    tab = probs.guard("load.touchstone", lambda: read_one_port(ts_path))
+    if tab is None:
+        return None, b""
+    return tab, ts_path.read_bytes()
+
+
+def _zload(load: LoadModel, grid: Grid | None, measured: TabulatedLoad | None,
+           probs: _Problems) -> np.ndarray | None:
+    """Load impedance on the grid (Ω)."""
+    if grid is None:
+        return None
+    if load.touchstone is not None:
+        return probs.guard("load.touchstone", lambda: measured(grid.freq)) if measured is not None else None
     if load.impedance is not None:
-        return probs.guard("load.impedance", lambda: loads.fixed_impedance(grid.freq, load.impedance)), b""
+        return probs.guard("load.impedance", lambda: loads.fixed_impedance(grid.freq, load.impedance))
     rlc = load.series_rlc or load.parallel_rlc
     kind = "series_rlc" if load.series_rlc is not None else "parallel_rlc"
     fn = loads.series_rlc if kind == "series_rlc" else loads.parallel_rlc
-    return probs.guard(f"load.{kind}", lambda: fn(grid.freq, rlc.r, rlc.l, rlc.c)), b""
+    return probs.guard(f"load.{kind}", lambda: fn(grid.freq, rlc.r, rlc.l, rlc.c))
 
 
 def _basis(length: Length) -> LengthBasis:
@@ -306,13 +328,19 @@ def _length_number(length: Length, f_ref: float) -> float:
 
 
 def _length_bound(spec: Length | LengthRange, f_ref: float, where: str, probs: _Problems) -> LengthBound | None:
+    ends = [spec] if isinstance(spec, Length) else [spec.min, spec.max]
+    for end in ends:
+        if end.kind == "electrical" and _length_number(end, f_ref) > MAX_DELAY_S:
+            probs.add(where, f"{end.value / (2 * math.pi):.6g} wavelengths at the reference frequency "
+                             f"{format_hz(f_ref)} is longer than 1 km in free space; lengths are limited to 1 km")
+            return None
     if isinstance(spec, Length):
         x = _length_number(spec, f_ref)
         return LengthBound(Bound(x, x), _basis(spec))
     lo, hi = _length_number(spec.min, f_ref), _length_number(spec.max, f_ref)
     if lo > hi:
         probs.add(where, f"min ({lo * 1e9:g} ns) must not exceed max ({hi * 1e9:g} ns) "
-                         f"at the reference frequency {f_ref:g} Hz")
+                         f"at the reference frequency {format_hz(f_ref)}")
         return None
     return LengthBound(Bound(lo, hi), _basis(spec.min))
 
@@ -321,7 +349,7 @@ def _media(z0: float | list[float] | Z0Range | None, vf: float, z_sys: float,
            default_free: tuple[float, float] | None = None) -> tuple[tuple[Medium, ...], Bound | None]:
     """Media and free-Z0 bound from a z0 value: fixed, a list (a choice) or {min, max} (free)."""
     if z0 is None and default_free is not None:
-        z0 = Z0Range(min=default_free[0], max=default_free[1])
+        z0 = Z0Range.model_construct(min=default_free[0], max=default_free[1])
     if z0 is None:
         return (Medium(z_sys, vf),), None
     if isinstance(z0, Z0Range):
@@ -331,24 +359,54 @@ def _media(z0: float | list[float] | Z0Range | None, vf: float, z_sys: float,
     return (Medium(float(z0), vf),), None
 
 
-def _lumped_bound(value: SIValue | Any) -> Bound:
-    if isinstance(value, SIValue):
-        return Bound(value.value, value.value)
-    lo, hi = value.min.value, value.max.value
-    return Bound(lo, hi, log=lo != hi)
+def _lumped_bound(value: PartValue) -> Bound:
+    return Bound(value.lo, value.hi, log=value.lo != value.hi)
+
+
+def _template_elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
+                       shelf: ShelfContext | None) -> tuple[ElementSpec, ...] | None:
+    """A template's elements; with shelf keys, each element is built from the shelf for its role."""
+    assert net.template is not None
+    vf = net.vf if net.vf is not None else 1.0
+    stepped = net.template == "stepped_line"
+    uses = {role: any(v not in (None, False) for v in net.role_keys(role).values()) for role in ROLES}
+    z0 = net.z0
+    media, z0_free = _media(z0, vf, z_sys, STEPPED_Z0_OHM if stepped and not any(uses.values()) else None)
+    spacing = _length_bound(net.spacing, f_ref, "network.spacing", probs) if net.spacing else None
+    max_length = _length_bound(net.max_length, f_ref, "network.max_length", probs) if net.max_length else None
+    if (net.spacing and spacing is None) or (net.max_length and max_length is None):
+        return None
+    plain = probs.guard("network.template", lambda: build_template(
+        net.template, f_ref, media, z0_free=z0_free, end=net.end or "either", spacing=spacing,
+        max_length=max_length, sections=net.sections or 3))
+    if plain is None or not any(uses.values()):
+        return plain
+    out: list[ElementSpec] = []
+    ok = True
+    for el in plain:
+        role = role_of(el)
+        if not uses[role]:
+            out.append(el)
+            continue
+        keys = net.role_keys(role)
+        where = f"network.{role}" if getattr(net, role) is not None else "network"
+        model = StubModel if el.kind != "line" else LineModel
+        extra = {"end": el.end} if el.kind != "line" else {}
+        spec = model.model_construct(length=None, z0=z0 if keys["cable"] is None else None, vf=vf,
+                                     microstrip=None, **keys, **extra)
+        lb = LengthBound(el.length, el.length_basis)
+        built = shelf_element(el.kind, spec, lb, z_sys, shelf, where, el.label, probs.add) if shelf else None
+        if built is None:
+            ok = False
+        else:
+            out.append(built)
+    return tuple(out) if ok else None
 
 
 def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
               shelf: ShelfContext | None = None) -> tuple[ElementSpec, ...] | None:
     if net.template is not None:
-        vf = net.vf if net.vf is not None else 1.0
-        stepped = net.template == "stepped_line"
-        media, z0_free = _media(net.z0, vf, z_sys, STEPPED_Z0_OHM if stepped else None)
-        spacing = _length_bound(net.spacing, f_ref, "network.spacing", probs) if net.spacing else None
-        max_length = _length_bound(net.max_length, f_ref, "network.max_length", probs) if net.max_length else None
-        return probs.guard("network.template", lambda: build_template(
-            net.template, f_ref, media, z0_free=z0_free, end=net.end or "either", spacing=spacing,
-            max_length=max_length, sections=net.sections or 3))
+        return _template_elements(net, f_ref, z_sys, probs, shelf)
     out: list[ElementSpec] = []
     ok = True
     for i, entry in enumerate(net.elements or ()):
@@ -378,6 +436,98 @@ def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
     return tuple(out) if ok else None
 
 
+# ---------------------------------------------------------------- names and files, checked on the raw file
+
+
+def _role_bodies(raw: dict) -> list[tuple[str, dict]]:
+    """(key path, mapping) of every place in the raw file that may name cables or allowances."""
+    out: list[tuple[str, dict]] = []
+    net = raw.get("network")
+    if not isinstance(net, dict):
+        return out
+    out.append(("network", net))
+    for role in ROLES:
+        if isinstance(net.get(role), dict):
+            out.append((f"network.{role}", net[role]))
+    elements = net.get("elements")
+    if isinstance(elements, list):
+        for i, entry in enumerate(elements):
+            if not isinstance(entry, dict):
+                continue
+            for kind, body in entry.items():
+                if kind in ELEMENT_KINDS and isinstance(body, dict):
+                    out.append((f"network.elements[{i}].{kind}", body))
+    return out
+
+
+def _check_names(raw: dict, catalog: dict[str, Cable], probs: _Problems) -> None:
+    """Cable and allowance names anywhere in the file, whatever else is wrong with it."""
+    shelf = raw.get("shelf") if isinstance(raw.get("shelf"), dict) else {}
+    allowances = shelf.get("allowances")
+    known = [k for k in allowances if isinstance(k, str)] if isinstance(allowances, dict) else []
+    for where, body in _role_bodies(raw):
+        if "cable" in body:
+            find_cables(body["cable"], catalog, where, probs.add, probs.note)
+        refs = body.get("allowances")
+        if isinstance(refs, list):
+            for j, ref in enumerate(refs):
+                if isinstance(ref, str) and ref not in known:
+                    probs.add(f"{where}.allowances[{j}]", unknown_allowance(ref, known))
+    stock = shelf.get("stock")
+    if isinstance(stock, dict):
+        for name in stock:
+            if isinstance(name, str):
+                full, why = lookup_cable(name, catalog)
+                if full is None:
+                    probs.add(f"shelf.stock.{name}", unknown_cable(name, catalog))
+                elif why:
+                    probs.note(f"shelf.stock.{name}", why)
+
+
+# ---------------------------------------------------------------- bounds on work
+
+
+def _check_work(parts: dict[str, Any], elements: tuple[ElementSpec, ...] | None, probs: _Problems) -> None:
+    """Refuse, before anything runs, a study whose search or robustness view is beyond the caps or would
+    not fit in memory; the message states the estimate."""
+    mask: MaskModel | None = parts.get("mask")
+    search: SearchModel | None = parts.get("search")
+    tol: ToleranceModel | None = parts.get("tolerance")
+    points = _grid_points(mask) if mask is not None else None
+    if points is not None and points > limits.MAX_GRID_POINTS:
+        probs.add("mask", f"{points:,} grid points in all; at most {limits.MAX_GRID_POINTS:,} "
+                          "(lower points on the segments)")
+        return
+    budget = limits.MEMORY_BUDGET_BYTES
+    known = points is not None and elements is not None
+    dim = NetworkSpec(elements).dim if known and elements is not None else 0
+    n_el = len(elements) if elements is not None else 0
+    if search is not None:
+        pop = search.population
+        need = limits.search_bytes(pop, dim, n_el, points) if known and points is not None else None
+        if pop > limits.MAX_POPULATION or (need is not None and need > budget):
+            estimate = (f" on {points:,} grid points need about {limits.gib(need)} of memory in one generation "
+                        f"(estimate: {limits.BYTES_PER_PARAMETER} B per candidate and search parameter, "
+                        f"{limits.BYTES_PER_ELEMENT} B per candidate and element, {16 * limits.ENGINE_ARRAYS} B per "
+                        f"grid point for each of up to {limits.ENGINE_CHUNK} candidates at once)"
+                        if need is not None else "")
+            probs.add("search.population", f"{pop:,} candidates{estimate}; the limits are "
+                      f"{limits.MAX_POPULATION:,} candidates and {limits.gib(budget)}: lower search.population"
+                      f"{' or the mask points' if need is not None and need > budget else ''}")
+    if tol is not None:
+        n = tol.samples
+        need = limits.robustness_bytes(n, n_el, points) if known and points is not None else None
+        if n > limits.MAX_SAMPLES or (need is not None and need > budget):
+            estimate = (f" on {points:,} grid points need about {limits.gib(need)} of memory (estimate: 64 B per "
+                        f"build and element, {16 * limits.ENGINE_ARRAYS} B per grid point for each of up to "
+                        f"{limits.ENGINE_CHUNK} builds at once)" if need is not None else "")
+            probs.add("tolerance.samples", f"{n:,} builds{estimate}; the limits are {limits.MAX_SAMPLES:,} builds "
+                      f"and {limits.gib(budget)}: lower tolerance.samples")
+
+
+# ---------------------------------------------------------------- the whole file
+
+
 def _digest(raw: dict, extra: bytes) -> str:
     canon = json.dumps(raw, sort_keys=True, separators=(",", ":"), ensure_ascii=False, default=str)
     h = hashlib.sha256(canon.encode("utf-8"))
@@ -386,8 +536,9 @@ def _digest(raw: dict, extra: bytes) -> str:
 
 
 def _default_name(path: Path) -> str:
-    stem = path.stem
-    return stem if re.match(NAME_PATTERN, stem) else re.sub(r"[^A-Za-z0-9_.-]+", "_", stem).strip("_") or "study"
+    """A study name from the file name: unsafe characters replaced, no leading dots, at most 100 characters."""
+    stem = re.sub(r"[^A-Za-z0-9_.-]+", "_", path.stem).strip("_").lstrip(".")[: limits.MAX_NAME]
+    return stem if stem and study_name_problem(stem) is None else "study"
 
 
 def _sections(raw: dict, exc: ValidationError) -> dict[str, Any]:
@@ -399,6 +550,8 @@ def _sections(raw: dict, exc: ValidationError) -> dict[str, Any]:
     for key, model in SECTION_MODELS.items():
         if key in raw and key not in bad:
             got[key] = model.model_validate(raw[key])
+        elif key not in raw and key not in bad and key in ("search", "tolerance"):
+            got[key] = model()
     for key, typ, default in (("system", Ohms, 50.0), ("reference", Frequency, None)):
         if key not in bad:
             got[key] = TypeAdapter(typ).validate_python(raw[key]) if key in raw else default
@@ -414,33 +567,36 @@ def load_study(path: str | os.PathLike) -> Study:
     """Read, validate and resolve a study file; raises :class:`StudyFileError` listing every problem."""
     p = Path(path)
     shown = str(path)
-    raw = _read_yaml(p, shown)
-    probs = _Problems(shown)
+    doc = _read_yaml(p, shown)
+    raw: dict = doc.data
+    probs = _Problems(shown, doc)
     parts: dict[str, Any]
     try:
-        model = StudyModel.model_validate(raw)
+        model: StudyModel | None = StudyModel.model_validate(raw)
         parts = {k: getattr(model, k) for k in ("load", "mask", "network", "search", "system", "reference",
-                                                 "shelf", "drive")}
+                                                 "shelf", "drive", "tolerance")}
     except ValidationError as exc:
         model = None
-        probs.lines.extend(_pydantic_problems(shown, exc))
+        _pydantic_problems(probs, exc)
         parts = _sections(raw, exc)
+
+    # Names and files, from the raw file: reported whatever else is wrong.
+    catalog, extra_bytes = catalog_in_force(raw.get("shelf"), p.parent, probs.add)
+    _check_names(raw, catalog, probs)
+    measured, ts_bytes = _touchstone(raw, p.parent, probs)
 
     grid = probs.guard("mask", lambda: _grid(parts["mask"])) if "mask" in parts else None
     f_ref = parts.get("reference") or (grid.centre if grid is not None else None)
-    zload, ts_bytes = (None, b"")
-    if "load" in parts:
-        zload, ts_bytes = _zload(parts["load"], grid, p.parent, probs)
+    zload = _zload(parts["load"], grid, measured, probs) if "load" in parts else None
     elements = None
     shelf = None
     if "shelf" in parts or "shelf" not in raw:
-        shelf = shelf_context(parts.get("shelf"), p.parent, probs.add)
-        cat_file = parts["shelf"].catalog if parts.get("shelf") is not None else None
-        if cat_file is not None:  # a changed catalog is a changed study
-            cat_path = Path(cat_file) if Path(cat_file).is_absolute() else p.parent / cat_file
-            ts_bytes += cat_path.read_bytes() if cat_path.is_file() else b""
+        shelf = shelf_context(parts.get("shelf"), catalog, probs.add)
     if "network" in parts and f_ref is not None and "system" in parts:
         elements = _elements(parts["network"], f_ref, parts["system"], probs, shelf)
+    _check_work(parts, elements, probs)
+    if model is not None and model.name is None and study_name_problem(_default_name(p)):
+        probs.file("the file name gives no usable study name; add name: to the file")
 
     if model is None or probs.lines:
         raise StudyFileError(probs.lines)
@@ -452,10 +608,10 @@ def load_study(path: str | os.PathLike) -> Study:
     assert shelf is not None
     problem = Problem(name=model.name or _default_name(p), z_sys=model.system, grid=grid, zload=zload,
                       network=NetworkSpec(elements, shelf.stock_tuple()), f_ref=f_ref)
-    return Study(path=p, problem=problem, search=search, raw=raw, digest=_digest(raw, ts_bytes),
+    return Study(path=p, problem=problem, search=search, raw=raw, digest=_digest(raw, ts_bytes + extra_bytes),
                  description=model.description, cables=shelf.catalog,
                  drive_w=model.drive.power if model.drive is not None else None,
-                 spread=_spread(model.tolerance, search.seed))
+                 spread=_spread(model.tolerance, search.seed), notes=tuple(probs.notes))
 
 
 def check_study(path: str | os.PathLike) -> list[str]:

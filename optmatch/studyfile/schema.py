@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 import re
+from dataclasses import dataclass
 from typing import Annotated, Any, Literal
 
 from pydantic import (
@@ -21,34 +22,50 @@ from pydantic import (
     Discriminator,
     Field,
     PlainValidator,
+    StrictFloat,
+    StrictInt,
+    StrictStr,
     Tag,
     ValidationInfo,
+    WithJsonSchema,
     field_validator,
     model_validator,
 )
 
 from optmatch.domain.mask import DEFAULT_POINTS
 from optmatch.domain.templates import TEMPLATES
-from optmatch.errors import OptmatchError
+from optmatch.errors import OptmatchError, did_you_mean
+from optmatch.studyfile import limits
 from optmatch.units import (
+    CAPACITANCE,
+    DECIBELS,
+    DURATION,
+    FREQUENCY,
+    IMPEDANCE,
+    INDUCTANCE,
+    LENGTH_UNITS,
+    LOSS,
+    NUMBER,
+    PERCENT,
+    POWER,
+    RESISTANCE,
+    RETURN_LOSS,
     Length,
+    QuantityKind,
+    format_hz,
     parse_complex,
-    parse_frequency,
-    parse_impedance_real,
     parse_length,
+    parse_percent,
+    parse_quantity,
     parse_velocity_factor,
+    parse_vswr,
+    quantity_pattern,
+    vswr_to_return_loss_db,
 )
 
 # Location parts that name a union branch, not a key; the loader drops them from key paths.
 BRANCH_MARK = "<"
-
-
-def fmt_hz(f: float) -> str:
-    """A frequency for messages: ``433.92 MHz``."""
-    for scale, unit in ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz")):
-        if abs(f) >= scale:
-            return f"{f / scale:.6g} {unit}"
-    return f"{f:.6g} Hz"
+fmt_hz = format_hz
 
 
 def _plain(exc: OptmatchError) -> str:
@@ -66,104 +83,50 @@ def _wrap(fn):  # noqa: ANN001, ANN202 - small adapter
     return run
 
 
-_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
-_DB = re.compile(rf"^\s*({_NUM})\s*(?:dB)?\s*$", re.IGNORECASE)
-_DURATION = re.compile(rf"^\s*({_NUM})\s*(s|sec|min|h)?\s*$")
-_SI = re.compile(rf"^\s*({_NUM})\s*([TGMkKmunpfµ]?)\s*(ohms?|Ω|H|F)?\s*$")
-_SI_PREFIX = {"T": 1e12, "G": 1e9, "M": 1e6, "k": 1e3, "K": 1e3, "": 1.0,
-              "m": 1e-3, "u": 1e-6, "µ": 1e-6, "n": 1e-9, "p": 1e-12, "f": 1e-15}
-_SECONDS = {None: 1.0, "s": 1.0, "sec": 1.0, "min": 60.0, "h": 3600.0}
+def _json_quantity(kind: QuantityKind) -> dict:
+    """JSON Schema of a quantity of ``kind``: a string with one of its units (or a bare number where
+    the kind accepts one), generated from the same unit table the parser uses."""
+    text = {"type": "string", "pattern": quantity_pattern(kind.units, kind.bare is not None)}
+    body: dict = {"anyOf": [{"type": "number"}, text]} if kind.bare is not None else text
+    bare = f"; a bare number is {kind.bare}" if kind.bare is not None else "; a unit is required"
+    body["description"] = f"{kind.name} ({kind.listed()}{bare})"
+    return body
 
 
-def _decibels(v: Any) -> float:
-    """A number of dB from ``15``, ``15dB`` or ``15 dB``."""
-    if isinstance(v, bool):
-        raise ValueError(f"expected a number of dB, got {v!r}")
-    if isinstance(v, (int, float)):
-        x = float(v)
-    else:
-        m = _DB.match(str(v))
-        if not m:
-            raise ValueError(f"{v!r} is not a number of dB (write e.g. 15 or '15 dB')")
-        x = float(m.group(1))
-    if not math.isfinite(x):
-        raise ValueError(f"{v!r} is not a finite number of dB")
-    return x
+def _quantity(kind: QuantityKind):  # noqa: ANN202 - an Annotated type
+    return Annotated[float, PlainValidator(_wrap(lambda v, what: parse_quantity(v, kind, what))),
+                     WithJsonSchema(_json_quantity(kind))]
 
 
-def _positive_db(v: Any) -> float:
-    x = _decibels(v)
-    if x <= 0:
-        raise ValueError(f"must be more than 0 dB, got {v!r}")
-    return x
-
-
-def _duration(v: Any) -> float:
-    """Seconds from ``90``, ``90s``, ``5min``, ``1h``; positive."""
-    if isinstance(v, bool):
-        raise ValueError(f"expected a duration, got {v!r}")
-    if isinstance(v, (int, float)):
-        x = float(v)
-    else:
-        m = _DURATION.match(str(v))
-        if not m:
-            raise ValueError(f"{v!r} is not a duration (write e.g. 90s, 5min or 1h)")
-        x = float(m.group(1)) * _SECONDS[m.group(2)]
-    if not math.isfinite(x) or x <= 0:
-        raise ValueError(f"must be a positive duration, got {v!r}")
-    return x
-
-
-class SIValue(BaseModel):
-    """A positive value with an optional unit: ``ohm`` (Ω), ``H``, ``F`` or none (``unit`` = '')."""
-
-    model_config = ConfigDict(frozen=True)
-    value: float
-    unit: Literal["ohm", "H", "F", ""]
-
-
-def _si_value(v: Any) -> SIValue:
-    if isinstance(v, SIValue):
-        return v
-    if isinstance(v, bool):
-        raise ValueError(f"expected a value, got {v!r}")
-    if isinstance(v, (int, float)):
-        x, unit = float(v), ""
-    else:
-        m = _SI.match(str(v))
-        if not m:
-            raise ValueError(f"{v!r} is not a value with an SI prefix and unit (e.g. 2.2pF, 15nH, 1k)")
-        x = float(m.group(1)) * _SI_PREFIX[m.group(2)]
-        u = m.group(3) or ""
-        unit = "ohm" if u.startswith("ohm") or u == "Ω" else u
-    if not math.isfinite(x) or x <= 0:
-        raise ValueError(f"must be positive, got {v!r}")
-    return SIValue(value=x, unit=unit)  # type: ignore[arg-type]
-
-
-def _unit_value(unit: str, name: str):  # noqa: ANN202 - validator factory
-    def run(v: Any) -> float:
-        q = _si_value(v)
-        if q.unit not in ("", unit):
-            raise ValueError(f"{v!r}: {name} is given in {unit} (e.g. {'15nH' if unit == 'H' else '2.2pF'})")
-        return q.value
-
-    return run
-
-
-Frequency = Annotated[float, PlainValidator(_wrap(parse_frequency))]  # Hz
-Ohms = Annotated[float, PlainValidator(_wrap(parse_impedance_real))]  # Ω, real, > 0
-VelocityFactor = Annotated[float, PlainValidator(_wrap(parse_velocity_factor))]  # (0, 1]
-ComplexOhms = Annotated[complex, PlainValidator(_wrap(parse_complex))]  # Ω
-LengthValue = Annotated[Length, PlainValidator(_wrap(parse_length))]
-Decibels = Annotated[float, PlainValidator(_decibels)]
-PositiveDecibels = Annotated[float, PlainValidator(_positive_db)]
-Seconds = Annotated[float, PlainValidator(_duration)]
-Henry = Annotated[float, PlainValidator(_unit_value("H", "inductance"))]
-Farad = Annotated[float, PlainValidator(_unit_value("F", "capacitance"))]
+_NUMBER_JSON = {"anyOf": [{"type": "number"}, {"type": "string", "pattern": rf"^\s*{NUMBER}\s*$"}]}
+Frequency = _quantity(FREQUENCY)  # Hz
+Ohms = _quantity(IMPEDANCE)  # Ω, real, > 0
+Resistance = _quantity(RESISTANCE)  # Ω
+Henry = _quantity(INDUCTANCE)
+Farad = _quantity(CAPACITANCE)
+Decibels = _quantity(DECIBELS)
+ReturnLossDb = _quantity(RETURN_LOSS)
+LossDb = _quantity(LOSS)
+Seconds = _quantity(DURATION)
+Watts = _quantity(POWER)
+Percent = Annotated[float, PlainValidator(_wrap(parse_percent)), WithJsonSchema(_json_quantity(PERCENT))]  # fraction
+VelocityFactor = Annotated[float, PlainValidator(_wrap(parse_velocity_factor)),
+                           WithJsonSchema({**_NUMBER_JSON, "description": "velocity factor, 0 to 1"})]
+Vswr = Annotated[float, PlainValidator(_wrap(parse_vswr)),
+                 WithJsonSchema({"anyOf": [{"type": "number", "exclusiveMinimum": 1},
+                                           {"type": "string", "pattern": rf"^\s*{NUMBER}\s*(?::1)?\s*$"}],
+                                 "description": "VSWR, more than 1 (e.g. 1.5 or '1.5:1')"})]
+ComplexOhms = Annotated[complex, PlainValidator(_wrap(parse_complex)),
+                        WithJsonSchema({"anyOf": [{"type": "number"}, {"type": "string"}],
+                                        "description": "complex impedance in Ω, e.g. 60-j80 or 60-80j"})]
+LengthValue = Annotated[Length, PlainValidator(_wrap(parse_length)),
+                        WithJsonSchema({"type": "string", "pattern": quantity_pattern(LENGTH_UNITS, False),
+                                        "description": "length: electrical (deg, wl, rad), physical (mm, cm, "
+                                                       "m, in) or a delay (ns, ps); a unit is required"})]
 Count = Annotated[int, Field(strict=True, ge=1)]
-Points = Annotated[int, Field(strict=True, ge=2)]
+Points = Annotated[int, Field(strict=True, ge=2, le=limits.MAX_POINTS_PER_SEGMENT)]
 EndName = Literal["open", "short", "either"]
+Name = Annotated[str, Field(strict=True, min_length=1, max_length=limits.MAX_NAME)]
 
 
 class _Model(BaseModel):
@@ -193,7 +156,9 @@ class Z0Range(_Model):
 
 # Z0: fixed (Ω), a list (a discrete choice) or {min, max} (free).
 Z0Value = Annotated[
-    Annotated[Z0Range, Tag("<range>")] | Annotated[Annotated[list[Ohms], Field(min_length=1)], Tag("<choice>")] | Annotated[Ohms, Tag("<fixed>")],
+    Annotated[Z0Range, Tag("<range>")]
+    | Annotated[Annotated[list[Ohms], Field(min_length=1, max_length=64)], Tag("<choice>")]
+    | Annotated[Ohms, Tag("<fixed>")],
     Discriminator(_branch),
 ]
 
@@ -220,21 +185,37 @@ LengthSpec = Annotated[
     Discriminator(lambda v: "<range>" if isinstance(v, dict) else "<fixed>"),
 ]
 
+# A lumped value as typed; its unit is checked against the part (r, l or c) by LumpedModel.
+RawValue = Annotated[
+    StrictStr | StrictInt | StrictFloat,
+    WithJsonSchema({"anyOf": [{"type": "number"}, {"type": "string", "pattern": quantity_pattern(
+        {**RESISTANCE.units, **INDUCTANCE.units, **CAPACITANCE.units}, True)}],
+        "description": "r in Ω (a bare number is Ω), l in H (e.g. 15nH), c in F (e.g. 2.2pF)"}),
+]
 
-class SIRange(_Model):
-    """A free lumped value between ``min`` and ``max``."""
 
-    min: Annotated[SIValue, PlainValidator(_si_value)]
-    max: Annotated[SIValue, PlainValidator(_si_value)]
+class RawRange(_Model):
+    """A free lumped value between ``min`` and ``max`` (units as the part needs)."""
+
+    min: RawValue
+    max: RawValue
 
 
-LumpedValue = Annotated[
-    Annotated[SIRange, Tag("<range>")] | Annotated[SIValue, PlainValidator(_si_value), Tag("<fixed>")],
+LumpedRaw = Annotated[
+    Annotated[RawRange, Tag("<range>")] | Annotated[RawValue, Tag("<fixed>")],
     Discriminator(lambda v: "<range>" if isinstance(v, dict) else "<fixed>"),
 ]
 
-_PART_UNIT = {"r": "ohm", "l": "H", "c": "F"}
-_PART_EXAMPLE = {"r": "47 or 1k", "l": "15nH", "c": "2.2pF"}
+
+@dataclass(frozen=True)
+class PartValue:
+    """A lumped value in SI units (Ω, H or F): fixed when ``lo == hi``."""
+
+    lo: float
+    hi: float
+
+
+_PART_KIND = {"r": RESISTANCE, "l": INDUCTANCE, "c": CAPACITANCE}
 
 
 # ---------------------------------------------------------------- shelf
@@ -255,31 +236,11 @@ def _physical_positive(v: Length) -> Length:
 
 PhysicalLength = Annotated[LengthValue, AfterValidator(_physical)]
 PositivePhysicalLength = Annotated[LengthValue, AfterValidator(_physical_positive)]
-_WATTS = re.compile(rf"^\s*({_NUM})\s*([kmM]?)\s*W?\s*$")
-
-
-def _watts(v: Any) -> float:
-    """Watts from ``100``, ``100W``, ``1.5kW``; positive."""
-    if isinstance(v, bool):
-        raise ValueError(f"expected a power, got {v!r}")
-    if isinstance(v, (int, float)):
-        x = float(v)
-    else:
-        m = _WATTS.match(str(v))
-        if not m:
-            raise ValueError(f"{v!r} is not a power (write e.g. 100W or 1.5kW)")
-        x = float(m.group(1)) * {"": 1.0, "k": 1e3, "m": 1e-3, "M": 1e6}[m.group(2)]
-    if not math.isfinite(x) or x <= 0:
-        raise ValueError(f"must be a positive power, got {v!r}")
-    return x
-
-
-Watts = Annotated[float, PlainValidator(_watts)]
 
 
 def _relative_permittivity(v: Any) -> float:
-    if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v < 1.0:
-        raise ValueError(f"relative permittivity must be a number >= 1, got {v!r}")
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or not 1.0 <= v <= 100.0:
+        raise ValueError(f"relative permittivity must be a number from 1 to 100, got {v!r}")
     return float(v)
 
 
@@ -287,15 +248,15 @@ class CutModel(_Model):
     """``cut``: cut to length from a reel, in whole ``step``s, never shorter than ``min`` (cable only)."""
 
     step: PositivePhysicalLength
-    min: PhysicalLength = Length("physical", 0.0)
+    min: PhysicalLength = Field(default="0mm", validate_default=True)
 
 
 class StockPieceModel(_Model):
     """A stock piece: ``length`` (physical, the cable itself) and how many are on the shelf."""
 
     length: PositivePhysicalLength
-    count: Count
-    cable: Annotated[str, Field(strict=True)] | None = None
+    count: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_STOCK_COUNT)]
+    cable: Name | None = None
 
 
 class AllowanceModel(_Model):
@@ -326,22 +287,24 @@ class AllowanceModel(_Model):
 class MicrostripModel(_Model):
     """``microstrip``: a printed line on a substrate of permittivity ``er``, height ``h``, copper ``t``."""
 
-    er: Annotated[float, PlainValidator(_relative_permittivity)]
+    er: Annotated[float, PlainValidator(_relative_permittivity),
+                  WithJsonSchema({"type": "number", "minimum": 1, "maximum": 100})]
     h: PositivePhysicalLength
-    t: PhysicalLength = Length("physical", 0.0)
+    t: PhysicalLength = Field(default="0mm", validate_default=True)
 
 
 AllowanceRef = Annotated[
-    Annotated[AllowanceModel, Tag("<range>")] | Annotated[str, Field(strict=True), Tag("<fixed>")],
+    Annotated[AllowanceModel, Tag("<range>")] | Annotated[Name, Tag("<fixed>")],
     Discriminator(lambda v: "<range>" if isinstance(v, dict) else "<fixed>"),
 ]
+AllowanceList = Annotated[list[AllowanceRef], Field(max_length=64)]
 CableNames = Annotated[
-    Annotated[Annotated[list[Annotated[str, Field(strict=True)]], Field(min_length=1)], Tag("<choice>")]
-    | Annotated[str, Field(strict=True), Tag("<fixed>")],
+    Annotated[Annotated[list[Name], Field(min_length=1, max_length=64)], Tag("<choice>")]
+    | Annotated[Name, Tag("<fixed>")],
     Discriminator(lambda v: "<choice>" if isinstance(v, list) else "<fixed>"),
 ]
 StockSpec = Annotated[
-    Annotated[Annotated[list[StockPieceModel], Field(min_length=1)], Tag("<choice>")]
+    Annotated[Annotated[list[StockPieceModel], Field(min_length=1, max_length=1000)], Tag("<choice>")]
     | Annotated[bool, Field(strict=True), Tag("<fixed>")],
     Discriminator(lambda v: "<choice>" if isinstance(v, list) else "<fixed>"),
 ]
@@ -350,9 +313,9 @@ StockSpec = Annotated[
 class ShelfModel(_Model):
     """``shelf``: cables beyond the shipped catalog, stock pieces per cable, and named allowances."""
 
-    catalog: Annotated[str, Field(strict=True)] | None = None
+    catalog: Name | None = None
     cables: dict[str, Any] | None = None
-    stock: dict[str, Annotated[list[StockPieceModel], Field(min_length=1)]] | None = None
+    stock: dict[str, Annotated[list[StockPieceModel], Field(min_length=1, max_length=1000)]] | None = None
     allowances: dict[str, AllowanceModel] | None = None
 
     @model_validator(mode="after")
@@ -363,34 +326,15 @@ class ShelfModel(_Model):
         return self
 
 
-def _percent(v: Any) -> float:
-    """A tolerance as a fraction from ``2%``, ``2 %`` or a plain number of percent (``2``)."""
-    if isinstance(v, bool):
-        raise ValueError(f"expected a percentage, got {v!r}")
-    text = str(v).strip()
-    if text.endswith("%"):
-        text = text[:-1].strip()
-    try:
-        x = float(text)
-    except ValueError:
-        raise ValueError(f"{v!r} is not a percentage (write e.g. 2%)") from None
-    if not (0.0 <= x < 100.0):
-        raise ValueError(f"must lie in [0, 100) %, got {v!r}")
-    return x / 100.0
-
-
-Percent = Annotated[float, PlainValidator(_percent)]  # fraction
-
-
 class ToleranceModel(_Model):
     """``tolerance``: build spreads for the yield Monte Carlo.  ``cut`` ± on every cable section;
     ``z0`` and ``vf`` ± (default: each cable's catalog tolerance); ``parts`` ± on lumped values."""
 
-    cut: PhysicalLength = Length("physical", 1e-3)
+    cut: PhysicalLength = Field(default="1mm", validate_default=True)
     z0: Percent | None = None
     vf: Percent | None = None
-    parts: Percent = 0.0
-    samples: Count = 500
+    parts: Percent = Field(default="0%", validate_default=True)
+    samples: Annotated[int, Field(strict=True, ge=1, json_schema_extra={"maximum": limits.MAX_SAMPLES})] = 500
 
 
 class DriveModel(_Model):
@@ -400,6 +344,19 @@ class DriveModel(_Model):
 
 
 # ---------------------------------------------------------------- elements
+
+SHELF_KEYS = ("cable", "cut", "stock", "allowances")
+
+
+def shelf_consistency(given: set[str], cable: Any, cut: Any, stock: Any) -> str | None:
+    """What is wrong with a set of line keys (None when nothing): cable vs z0/vf, cut vs stock."""
+    if cable is not None and ({"z0", "vf"} & given):
+        return "cable sets z0 and vf; drop z0/vf or drop cable"
+    if (cut is not None or stock not in (None, False)) and cable is None:
+        return "cut and stock need a cable (cable: NAME or a list of names)"
+    if cut is not None and stock not in (None, False):
+        return "give either cut (cut to length) or stock (fixed pieces), not both"
+    return None
 
 
 class _LineLike(_Model):
@@ -411,20 +368,17 @@ class _LineLike(_Model):
     cable: CableNames | None = None
     cut: CutModel | None = None
     stock: StockSpec | None = None
-    allowances: list[AllowanceRef] | None = None
+    allowances: AllowanceList | None = None
     microstrip: MicrostripModel | None = None
 
     @model_validator(mode="after")
     def _consistent(self) -> _LineLike:
         given = self.model_fields_set
-        if self.cable is not None and ({"z0", "vf"} & given):
-            raise ValueError("cable sets z0 and vf; drop z0/vf or drop cable")
+        wrong = shelf_consistency(set(given), self.cable, self.cut, self.stock)
+        if wrong:
+            raise ValueError(wrong)
         if self.microstrip is not None and ({"vf", "cable"} & given):
             raise ValueError("microstrip sets its own velocity factor; drop vf/cable")
-        if (self.cut is not None or self.stock not in (None, False)) and self.cable is None:
-            raise ValueError("cut and stock need a cable (cable: NAME or a list of names)")
-        if self.cut is not None and self.stock not in (None, False):
-            raise ValueError("give either cut (cut to length) or stock (fixed pieces), not both")
         if self.stock not in (None, False) and self.length is not None:
             raise ValueError("stock pieces fix the length; drop length")
         if self.length is None and self.stock in (None, False):
@@ -443,27 +397,32 @@ class StubModel(_LineLike):
 
 
 class LumpedModel(_Model):
-    """``lumped``: an ideal R (Ω), L (H) or C (F), series or shunt; ``value`` fixed or {min, max}."""
+    """``lumped``: an ideal R (Ω), L (H) or C (F), series or shunt; ``value`` fixed or {min, max}.
+
+    After validation ``value`` holds a :class:`PartValue` in SI units."""
 
     connection: Literal["series", "shunt"]
     part: Literal["r", "l", "c"]
-    value: LumpedValue
+    value: LumpedRaw
 
     @field_validator("value", mode="after")
     @classmethod
-    def _units_suit_part(cls, v: SIValue | SIRange, info: ValidationInfo) -> SIValue | SIRange:
+    def _units_suit_part(cls, v: Any, info: ValidationInfo) -> Any:
         part = info.data.get("part")
         if part is None:
             return v
-        want = _PART_UNIT[part]
-        ends = [("", v)] if isinstance(v, SIValue) else [("min: ", v.min), ("max: ", v.max)]
-        for label, q in ends:
-            if q.unit not in ("", want):
-                raise ValueError(f"{label}a value in {q.unit} does not suit part {part!r} "
-                                 f"(give {want}, e.g. {_PART_EXAMPLE[part]})")
-        if isinstance(v, SIRange) and v.min.value > v.max.value:
-            raise ValueError(f"min ({v.min.value:g}) must not exceed max ({v.max.value:g})")
-        return v
+        kind = _PART_KIND[part]
+        try:
+            if isinstance(v, RawRange):
+                lo = parse_quantity(v.min, kind, "min")
+                hi = parse_quantity(v.max, kind, "max")
+                if lo > hi:
+                    raise ValueError(f"min ({lo:g}) must not exceed max ({hi:g})")
+                return PartValue(lo, hi)
+            x = parse_quantity(v, kind, "value")
+        except OptmatchError as exc:
+            raise ValueError(f"{_plain(exc)} (part {part!r} takes {kind.name})") from None
+        return PartValue(x, x)
 
 
 ELEMENT_KINDS = ("line", "shunt_stub", "series_stub", "lumped")
@@ -471,6 +430,8 @@ ELEMENT_KINDS = ("line", "shunt_stub", "series_stub", "lumped")
 
 class ElementEntry(_Model):
     """One list entry of ``network.elements``: exactly one key naming the element kind."""
+
+    model_config = ConfigDict(json_schema_extra={"minProperties": 1, "maxProperties": 1})
 
     line: LineModel | None = None
     shunt_stub: StubModel | None = None
@@ -507,7 +468,7 @@ class ElementEntry(_Model):
 class RLCModel(_Model):
     """Series or parallel R (Ω), L (H), C (F): any subset, at least one."""
 
-    r: Ohms | None = None
+    r: Resistance | None = None
     l: Henry | None = None  # noqa: E741 - the trade's letter for inductance
     c: Farad | None = None
 
@@ -536,10 +497,12 @@ def _touchstone_name(v: str) -> str:
 class LoadModel(_Model):
     """``load``: exactly one of the four kinds."""
 
+    model_config = ConfigDict(json_schema_extra={"minProperties": 1, "maxProperties": 1})
+
     impedance: Annotated[ComplexOhms, AfterValidator(_nonnegative_real)] | None = None
     series_rlc: RLCModel | None = None
     parallel_rlc: RLCModel | None = None
-    touchstone: Annotated[str, Field(strict=True), AfterValidator(_touchstone_name)] | None = None
+    touchstone: Annotated[str, Field(strict=True, max_length=4096), AfterValidator(_touchstone_name)] | None = None
 
     @model_validator(mode="before")
     @classmethod
@@ -562,40 +525,67 @@ class LoadModel(_Model):
 
 
 class SegmentModel(_Model):
-    """One mask segment: ``from``..``to`` (Hz) needs ``return_loss`` (dB); ``max_loss`` (dB) optional."""
+    """One mask segment: ``from``..``to`` (Hz) needs ``return_loss`` (dB) or ``vswr`` (exactly one);
+    ``max_loss`` (dB) is optional."""
+
+    model_config = ConfigDict(json_schema_extra={"oneOf": [{"required": ["return_loss"]}, {"required": ["vswr"]}]})
 
     from_: Frequency = Field(alias="from")
     to: Frequency
-    return_loss: PositiveDecibels
-    max_loss: PositiveDecibels | None = None
+    return_loss: ReturnLossDb | None = None
+    vswr: Vswr | None = None
+    max_loss: LossDb | None = None
     points: Points | None = None
 
     @model_validator(mode="after")
     def _ascending(self) -> SegmentModel:
         if self.from_ > self.to:
             raise ValueError(f"from ({fmt_hz(self.from_)}) must not exceed to ({fmt_hz(self.to)})")
+        if (self.return_loss is None) == (self.vswr is None):
+            raise ValueError("give return_loss (dB) or vswr, exactly one of the two")
         return self
+
+    @property
+    def min_rl_db(self) -> float:
+        """The requirement as return loss (dB), from whichever form was given."""
+        if self.return_loss is not None:
+            return self.return_loss
+        assert self.vswr is not None
+        return vswr_to_return_loss_db(self.vswr)
 
 
 class MaskModel(_Model):
     """``mask``: default ``points`` per segment and at least one segment."""
 
     points: Points = DEFAULT_POINTS
-    segments: Annotated[list[SegmentModel], Field(min_length=1)]
+    segments: Annotated[list[SegmentModel], Field(min_length=1, max_length=limits.MAX_SEGMENTS)]
 
 
 def _known_template(v: str) -> str:
     if v not in TEMPLATES:
-        raise ValueError(f"unknown template {v!r} (choose from {', '.join(TEMPLATES)})")
+        raise ValueError(f"unknown template {v!r}{did_you_mean(v, TEMPLATES, quote=True)} "
+                         f"(choose from {', '.join(TEMPLATES)})")
     return v
 
 
-TEMPLATE_OPTIONS = ("z0", "vf", "end", "spacing", "sections", "max_length")
+class RoleModel(_Model):
+    """Shelf keys for one role of a template's elements (``lines`` or ``stubs``); they replace the
+    template-level keys of the same name for that role."""
+
+    cable: CableNames | None = None
+    cut: CutModel | None = None
+    stock: StockSpec | None = None
+    allowances: AllowanceList | None = None
+
+
+TEMPLATE_OPTIONS = ("z0", "vf", "end", "spacing", "sections", "max_length", *SHELF_KEYS, "lines", "stubs")
+STUB_TEMPLATES = ("single_shunt_stub", "single_series_stub", "double_stub", "triple_stub")
 _OPTION_TEMPLATES = {
-    "end": ("single_shunt_stub", "single_series_stub", "double_stub", "triple_stub"),
+    "end": STUB_TEMPLATES,
     "spacing": ("double_stub", "triple_stub"),
     "sections": ("stepped_line",),
-    "max_length": ("single_shunt_stub", "single_series_stub", "double_stub", "triple_stub"),
+    "max_length": STUB_TEMPLATES,
+    "stubs": STUB_TEMPLATES,
 }
 
 
@@ -606,16 +596,27 @@ def _positive_length(v: Length) -> Length:
 
 
 class NetworkModel(_Model):
-    """``network``: a named ``template`` with options, or an explicit ``elements`` list."""
+    """``network``: a named ``template`` with options, or an explicit ``elements`` list.
+
+    A template takes the shelf keys ``cable``, ``cut``, ``stock`` and ``allowances`` for every
+    element it makes, and ``lines:`` / ``stubs:`` hold per-role replacements of them."""
+
+    model_config = ConfigDict(json_schema_extra={"oneOf": [{"required": ["template"]}, {"required": ["elements"]}]})
 
     template: Annotated[str, Field(strict=True), AfterValidator(_known_template)] | None = None
     z0: Z0Value | None = None
     vf: VelocityFactor | None = None
     end: EndName | None = None
     spacing: Annotated[LengthValue, AfterValidator(_positive_length)] | None = None
-    sections: Count | None = None
+    sections: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_SECTIONS)] | None = None
     max_length: Annotated[LengthValue, AfterValidator(_positive_length)] | None = None
-    elements: Annotated[list[ElementEntry], Field(min_length=1)] | None = None
+    cable: CableNames | None = None
+    cut: CutModel | None = None
+    stock: StockSpec | None = None
+    allowances: AllowanceList | None = None
+    lines: RoleModel | None = None
+    stubs: RoleModel | None = None
+    elements: Annotated[list[ElementEntry], Field(min_length=1, max_length=limits.MAX_ELEMENTS)] | None = None
 
     @model_validator(mode="before")
     @classmethod
@@ -640,48 +641,100 @@ class NetworkModel(_Model):
     def _some_network(self) -> NetworkModel:
         if self.template is None and self.elements is None:
             raise ValueError("give a template or a list of elements")
+        if self.template is not None:
+            for role in ("lines", "stubs"):
+                keys = self.role_keys(role)
+                given = set(self.model_fields_set)
+                wrong = shelf_consistency(given, keys["cable"], keys["cut"], keys["stock"])
+                if wrong:
+                    raise ValueError(f"{role} of template {self.template}: {wrong}")
         return self
+
+    def role_keys(self, role: str) -> dict[str, Any]:
+        """The shelf keys in force for ``role`` (``lines`` or ``stubs``): the role's own, else the template's."""
+        own: RoleModel | None = getattr(self, role)
+        out = {k: getattr(self, k) for k in SHELF_KEYS}
+        if own is not None:
+            out.update({k: getattr(own, k) for k in own.model_fields_set})
+        return out
 
 
 class SearchModel(_Model):
     """``search``: effort, budget and what to optimise."""
 
-    trials: Count = 24
+    trials: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_TRIALS)] = 24
     time: Seconds | None = None
-    seed: Annotated[int, Field(strict=True, ge=0)] = 0
+    seed: Annotated[int, Field(strict=True, ge=0, le=limits.MAX_SEED)] = 0
     target_margin: Decibels | None = None
-    keep: Count = 5
-    population: Annotated[int, Field(strict=True, ge=2)] = 64
-    generations: Count = 60
+    keep: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_KEEP)] = 5
+    # The upper bounds of population and samples are checked by the loader against a memory estimate.
+    population: Annotated[int, Field(strict=True, ge=2, json_schema_extra={"maximum": limits.MAX_POPULATION})] = 64
+    generations: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_GENERATIONS)] = 60
     objective: Literal["margin", "pareto"] = "margin"
 
 
 NAME_PATTERN = r"^[A-Za-z0-9_.-]+$"
+NAME_JSON_PATTERN = r"^(?!\.+$)[A-Za-z0-9_.-]{1,100}$"
+
+
+def study_name_problem(v: str) -> str | None:
+    """Why ``v`` cannot name a study (and so its results folder), or None when it can."""
+    if not v:
+        return "is empty"
+    if len(v) > limits.MAX_NAME:
+        return f"is {len(v)} characters long; at most {limits.MAX_NAME}"
+    if not re.match(NAME_PATTERN, v):
+        return f"{_short_text(v)} may hold only letters, digits, '_', '.' and '-'"
+    if set(v) == {"."}:
+        return f"{v!r} names a folder above or at the results folder; give a name of letters or digits"
+    return None
+
+
+def _short_text(v: str, limit: int = 40) -> str:
+    text = repr(v)
+    return text if len(text) <= limit else text[: limit - 3] + "..."
 
 
 def _study_name(v: str) -> str:
-    if not re.match(NAME_PATTERN, v):
-        raise ValueError(f"{v!r} may hold only letters, digits, '_', '.' and '-'")
+    wrong = study_name_problem(v)
+    if wrong:
+        raise ValueError(wrong)
     return v
 
 
 class StudyModel(_Model):
     """A whole study file."""
 
-    name: Annotated[str, Field(strict=True), AfterValidator(_study_name)] | None = None
-    description: Annotated[str, Field(strict=True)] = ""
+    model_config = ConfigDict(title="optmatch study file")
+
+    name: Annotated[str, Field(strict=True), AfterValidator(_study_name),
+                    WithJsonSchema({"type": "string", "pattern": NAME_JSON_PATTERN,
+                                    "description": "study name: names results/<name>/"})] | None = None
+    description: Annotated[str, Field(strict=True, max_length=limits.MAX_DESCRIPTION)] = ""
     system: Ohms = 50.0
     reference: Frequency | None = None
     load: LoadModel
     mask: MaskModel
     network: NetworkModel
-    search: SearchModel = SearchModel()
+    search: SearchModel = Field(default_factory=SearchModel)
     shelf: ShelfModel | None = None
     drive: DriveModel | None = None
-    tolerance: ToleranceModel = ToleranceModel()
+    tolerance: ToleranceModel = Field(default_factory=ToleranceModel)
 
 
 SECTION_MODELS: dict[str, type[BaseModel]] = {
     "load": LoadModel, "mask": MaskModel, "network": NetworkModel, "search": SearchModel,
     "shelf": ShelfModel, "drive": DriveModel, "tolerance": ToleranceModel,
 }
+
+
+def json_schema() -> dict:
+    """The study file's JSON Schema (draft 2020-12), generated from these models so it cannot drift."""
+    body = StudyModel.model_json_schema(by_alias=True, mode="validation")
+    return {
+        "$schema": "https://json-schema.org/draft/2020-12/schema",
+        "title": "optmatch study file",
+        "description": "A study for optmatch (optmatch check FILE validates it fully: units, names, files "
+                       "and bounds). Generated by `optmatch schema`; do not edit by hand.",
+        **{k: v for k, v in body.items() if k not in ("title", "description")},
+    }

@@ -9,14 +9,16 @@ negative).  A physical ``length`` is the cable itself.  Units after resolution: 
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 from optmatch.domain.cables import Cable, merge_catalogs
 from optmatch.domain.microstrip import Substrate, velocity_factor
 from optmatch.domain.network import Bound, ElementSpec, Medium
 from optmatch.domain.templates import LengthBound
+from optmatch.errors import closest, did_you_mean
 from optmatch.io.catalog import CatalogError, cables_from_mapping, read_catalog, shipped_catalog
 from optmatch.studyfile.schema import AllowanceModel, ShelfModel, StockPieceModel, Z0Range
 from optmatch.units import C0
@@ -41,36 +43,107 @@ class ShelfContext:
         return tuple((name, length, count) for (name, length), count in sorted(self.pool.items()))
 
 
-def shelf_context(shelf: ShelfModel | None, study_dir: Path, add: Problem) -> ShelfContext:
-    """The catalog (shipped + ``shelf.catalog`` file + ``shelf.cables``), allowances and shelf stock."""
+CLASS_SUFFIX = "-class"
+
+
+def lookup_cable(name: str, catalog: Mapping[str, Cable]) -> tuple[str | None, str | None]:
+    """The catalog name ``name`` stands for, and a note when it was a bare trade designation.
+
+    ``RG-213`` finds ``RG-213-class`` (the catalog names classes, not products); anything else must
+    match exactly.  Returns (None, None) when the catalog has no such cable.
+    """
+    if name in catalog:
+        return name, None
+    if f"{name}{CLASS_SUFFIX}" in catalog:
+        full = f"{name}{CLASS_SUFFIX}"
+        return full, f"cable {name!r} is the catalog class {full!r} (typical figures of that class)"
+    return None, None
+
+
+def unknown_cable(name: str, catalog: Mapping[str, Cable]) -> str:
+    """The one-line problem for a cable name the catalog lacks, with the closest name when close."""
+    bare = {n.removesuffix(CLASS_SUFFIX): n for n in catalog}
+    best = closest(name, list(catalog) + list(bare))
+    hint = f"; did you mean {bare.get(best, best)!r}?" if best else ""
+    return f"unknown cable {name!r}{hint} (known: {', '.join(catalog)}; see optmatch cables)"
+
+
+def find_cables(names: Any, catalog: Mapping[str, Cable], where: str, add: Problem,
+                note: Callable[[str, str], None] | None = None) -> list[Cable] | None:
+    """The cables named at ``where`` (one name or a list); every unknown name is a problem."""
+    if isinstance(names, str):
+        items = [(f"{where}.cable", names)]
+    elif isinstance(names, list):
+        items = [(f"{where}.cable[{k}]", n) for k, n in enumerate(names)]
+    else:
+        return None
+    out: list[Cable] = []
+    ok = True
+    for at, n in items:
+        if not isinstance(n, str):
+            ok = False
+            continue
+        full, why = lookup_cable(n, catalog)
+        if full is None:
+            add(at, unknown_cable(n, catalog))
+            ok = False
+            continue
+        if why and note is not None:
+            note(at, why)
+        out.append(catalog[full])
+    return out if ok else None
+
+
+def unknown_allowance(name: str, known: list[str]) -> str:
+    """The one-line problem for an allowance name that ``shelf.allowances`` does not define."""
+    listed = ", ".join(known) or "none defined under shelf.allowances"
+    return f"unknown allowance {name!r}{did_you_mean(name, known, quote=True)} (known: {listed})"
+
+
+def catalog_in_force(shelf: Any, study_dir: Path, add: Problem) -> tuple[dict[str, Cable], bytes]:
+    """The catalog a study uses: shipped, then ``shelf.catalog`` (a file), then ``shelf.cables``,
+    read from the raw ``shelf`` mapping so that it is known even when other shelf keys are wrong.
+    Also returns the bytes of the catalog file (part of the study's digest)."""
     catalog = shipped_catalog()
-    if shelf is None:
-        return ShelfContext(catalog)
-    if shelf.catalog is not None:
-        path = Path(shelf.catalog)
+    extra = b""
+    if not isinstance(shelf, Mapping):
+        return catalog, extra
+    cat_file = shelf.get("catalog")
+    if isinstance(cat_file, str) and cat_file.strip():
+        path = Path(cat_file)
         if not path.is_absolute():
             path = study_dir / path
         try:
             catalog = merge_catalogs(catalog, read_catalog(path))
+            extra = path.read_bytes()
         except CatalogError as exc:
             for line in exc.problems:
                 add("shelf.catalog", line)
-    if shelf.cables is not None:
-        extra, probs = cables_from_mapping(shelf.cables, "shelf.cables")
+    cables = shelf.get("cables")
+    if cables is not None:
+        more, probs = cables_from_mapping(cables, "shelf.cables")
         for line in probs:
             where, _, what = line.partition(": ")
             add(where, what)
-        catalog = merge_catalogs(catalog, extra)
+        catalog = merge_catalogs(catalog, more)
+    return catalog, extra
+
+
+def shelf_context(shelf: ShelfModel | None, catalog: dict[str, Cable], add: Problem) -> ShelfContext:
+    """Named allowances and shelf stock on top of the catalog in force (see :func:`catalog_in_force`)."""
     ctx = ShelfContext(catalog)
+    if shelf is None:
+        return ctx
     for name, a in (shelf.allowances or {}).items():
         ctx.allowances[name] = a.delay_s
     for name, pieces in (shelf.stock or {}).items():
-        if name not in catalog:
-            add(f"shelf.stock.{name}", f"unknown cable (known: {', '.join(catalog)})")
+        full, _ = lookup_cable(name, catalog)
+        if full is None:
+            add(f"shelf.stock.{name}", unknown_cable(name, catalog))
             continue
-        ctx.shelf_stock[name] = [(p.length.value, p.count) for p in pieces]
+        ctx.shelf_stock[full] = ctx.shelf_stock.get(full, []) + [(p.length.value, p.count) for p in pieces]
         for p in pieces:
-            ctx.add_stock(name, p.length.value, p.count)
+            ctx.add_stock(full, p.length.value, p.count)
     return ctx
 
 
@@ -79,8 +152,7 @@ def _allowance_delay(refs: list[str | AllowanceModel] | None, ctx: ShelfContext,
     for j, a in enumerate(refs or []):
         if isinstance(a, str):
             if a not in ctx.allowances:
-                known = ", ".join(ctx.allowances) or "none defined under shelf.allowances"
-                add(f"{where}.allowances[{j}]", f"unknown allowance {a!r} (known: {known})")
+                add(f"{where}.allowances[{j}]", unknown_allowance(a, list(ctx.allowances)))
                 return None
             total += ctx.allowances[a]
         else:
@@ -89,13 +161,7 @@ def _allowance_delay(refs: list[str | AllowanceModel] | None, ctx: ShelfContext,
 
 
 def _cables(names: str | list[str], ctx: ShelfContext, where: str, add: Problem) -> list[Cable] | None:
-    names = [names] if isinstance(names, str) else list(names)
-    unknown = [n for n in names if n not in ctx.catalog]
-    if unknown:
-        add(f"{where}.cable", f"unknown cable {unknown[0]!r} (known: {', '.join(ctx.catalog)}; "
-                              "see optmatch cables)")
-        return None
-    return [ctx.catalog[n] for n in names]
+    return find_cables(names, ctx.catalog, where, add)
 
 
 def _less_allowance(lb: LengthBound, allow_s: float, where: str, add: Problem) -> LengthBound | None:
@@ -148,7 +214,7 @@ def _stock_options(spec, cables: list[Cable], ctx: ShelfContext, where: str,
         return options
     for j, piece in enumerate(spec.stock):
         assert isinstance(piece, StockPieceModel)
-        name = piece.cable or (cables[0].name if len(cables) == 1 else None)
+        name = lookup_cable(piece.cable, by_name)[0] if piece.cable else (cables[0].name if len(cables) == 1 else None)
         if name is None or name not in by_name:
             add(f"{where}.stock[{j}].cable", f"name one of this element's cables ({', '.join(by_name)})")
             return None
