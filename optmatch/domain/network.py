@@ -22,6 +22,13 @@ ElementKind = Literal["line", "shunt_stub", "series_stub", "lumped"]
 End = Literal["open", "short", "either"]
 LengthBasis = Literal["delay", "physical"]
 
+# The one map from a line-like element kind to its engine stage (closed-form solutions use it too).
+LINE_STAGES: dict[str, Stage] = {
+    "line": Stage("line"),
+    "shunt_stub": Stage("stub", "shunt"),
+    "series_stub": Stage("stub", "series"),
+}
+
 
 @dataclass(frozen=True)
 class Bound:
@@ -106,12 +113,9 @@ class ElementSpec:
         return self.piece_m[option] if option < len(self.piece_m) else None
 
     def stage(self) -> Stage:
-        if self.kind == "line":
-            return Stage("line")
-        if self.kind == "shunt_stub":
-            return Stage("stub", "shunt")
-        if self.kind == "series_stub":
-            return Stage("stub", "series")
+        """The engine stage of this element (:data:`LINE_STAGES`, or a lumped part)."""
+        if self.kind in LINE_STAGES:
+            return LINE_STAGES[self.kind]
         return Stage("lumped", self.connection, self.part)
 
 
