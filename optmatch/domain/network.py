@@ -87,6 +87,8 @@ class ElementSpec:
     Shelf: ``piece_m`` gives, per medium option, the length (m) of a stock piece of that cable, or
     None where the option is cut to length (then the ``length`` bound applies); empty = all cut.
     ``cut_step_m``: cut lengths are whole multiples of this step (m; basis ``physical``).
+    ``max_voltage_v``: the lowest peak RF voltage rating among the allowances (connectors, adapters,
+    tees) that give one at this element, for the power check (V; None = none given).
     Lumped parts: ``connection``, ``part`` and ``value`` bound (Ω, H or F).
     """
 
@@ -103,6 +105,7 @@ class ElementSpec:
     part: Literal["r", "l", "c"] | None = None
     value: Bound | None = None
     label: str = ""
+    max_voltage_v: float | None = None  # lowest peak-voltage rating of the connectors at this element (V)
 
     @property
     def is_line_like(self) -> bool:

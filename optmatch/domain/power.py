@@ -18,6 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from optmatch.domain.cables import Cable
 from optmatch.engine import Grid, Stage, add_branch, branch_pair, line_terms, through_line
 
 SAMPLES = 513  # points along each section (a 1-λ section is sampled every 0.7°)
@@ -123,50 +124,66 @@ def drive(stages: Sequence[Stage], params: Sequence[Mapping], freq: np.ndarray, 
 
 @dataclass(frozen=True)
 class RatingCheck:
-    """One section against its cable's ratings, at the worst frequency of each figure."""
+    """One section against its cable's ratings and its connectors' voltage rating, at the worst
+    frequency of each figure.  Cable figures are None without a catalog cable; the connector
+    rating is None where no allowance at the element gives one."""
 
     index: int
-    cable: str
+    cable: str | None
     peak_voltage_v: float
     voltage_freq_hz: float
-    max_voltage_v: float
-    heating_w: float
-    heating_freq_hz: float
-    power_rating_w: float
     peak_current_a: float
     dissipated_w: float
     open_end_v: float | None
+    max_voltage_v: float | None = None
+    heating_w: float | None = None
+    heating_freq_hz: float | None = None
+    power_rating_w: float | None = None
+    connector_max_voltage_v: float | None = None
 
     @property
-    def voltage_ok(self) -> bool:
-        return self.peak_voltage_v <= self.max_voltage_v
+    def voltage_ok(self) -> bool | None:
+        return None if self.max_voltage_v is None else self.peak_voltage_v <= self.max_voltage_v
 
     @property
-    def power_ok(self) -> bool:
-        return self.heating_w <= self.power_rating_w
+    def power_ok(self) -> bool | None:
+        return None if self.heating_w is None or self.power_rating_w is None else self.heating_w <= self.power_rating_w
+
+    @property
+    def connector_ok(self) -> bool | None:
+        if self.connector_max_voltage_v is None:
+            return None
+        return self.peak_voltage_v <= self.connector_max_voltage_v
 
 
-def check_ratings(result: DriveResult, cables: Mapping[int, object]) -> list[RatingCheck]:
-    """Compare every section that has a catalog cable (``cables``: element index → Cable) with its ratings.
+def check_ratings(result: DriveResult, cables: Mapping[int, Cable],
+                  connectors: Mapping[int, float] | None = None) -> list[RatingCheck]:
+    """Compare every section that has a catalog cable (``cables``: element index → Cable) or a connector
+    voltage rating (``connectors``: element index → peak V) with those ratings.
 
     Power: the largest local heating along the section against the cable's power rating derated to
-    that frequency (1 / attenuation); voltage: the peak RF voltage anywhere along it and over the band.
+    that frequency (1 / attenuation); voltage: the peak RF voltage anywhere along the section and over
+    the band, against the cable's rating and against its connectors' (a connector sits at an end of
+    the section, so this is on the safe side).
     """
+    connectors = connectors or {}
     out = []
     for sec in result.sections:
         cable = cables.get(sec.index)
-        if cable is None:
+        connector_v = connectors.get(sec.index)
+        if cable is None and connector_v is None:
             continue
-        rating = np.asarray(cable.power_rating_w(result.freq), dtype=float)  # type: ignore[attr-defined]
         jv = int(np.argmax(sec.voltage_v))
+        common = dict(index=sec.index, cable=None if cable is None else cable.name,
+                      peak_voltage_v=float(sec.voltage_v[jv]), voltage_freq_hz=float(result.freq[jv]),
+                      peak_current_a=float(np.max(sec.current_a)), dissipated_w=float(np.max(sec.dissipated_w)),
+                      open_end_v=None if sec.open_end_v is None else float(np.max(sec.open_end_v)),
+                      connector_max_voltage_v=connector_v)
+        if cable is None:
+            out.append(RatingCheck(**common))
+            continue
+        rating = np.asarray(cable.power_rating_w(result.freq), dtype=float)
         jh = int(np.argmax(sec.heating_w / rating))
-        out.append(RatingCheck(
-            index=sec.index, cable=cable.name,  # type: ignore[attr-defined]
-            peak_voltage_v=float(sec.voltage_v[jv]), voltage_freq_hz=float(result.freq[jv]),
-            max_voltage_v=float(cable.max_voltage_v),  # type: ignore[attr-defined]
-            heating_w=float(sec.heating_w[jh]), heating_freq_hz=float(result.freq[jh]),
-            power_rating_w=float(rating[jh]), peak_current_a=float(np.max(sec.current_a)),
-            dissipated_w=float(np.max(sec.dissipated_w)),
-            open_end_v=None if sec.open_end_v is None else float(np.max(sec.open_end_v)),
-        ))
+        out.append(RatingCheck(**common, max_voltage_v=float(cable.max_voltage_v), heating_w=float(sec.heating_w[jh]),
+                               heating_freq_hz=float(result.freq[jh]), power_rating_w=float(rating[jh])))
     return out

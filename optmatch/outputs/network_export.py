@@ -81,21 +81,27 @@ def matched_input(problem: Problem, design: Design) -> np.ndarray:
     return problem.response(design.vector(), design.choice).gamma[0]
 
 
-def export_touchstone(problem: Problem, design: Design, folder: str | os.PathLike, rank: int = 1) -> tuple[Path, Path]:
+INVENTED_NOTE = "INVENTED data: the study says its load data is invented; this is not about a measured device"
+
+
+def export_touchstone(problem: Problem, design: Design, folder: str | os.PathLike, rank: int = 1,
+                      invented: bool = False) -> tuple[Path, Path]:
     """Write ``best_network.s2p`` (the network alone) and ``matched_input.s1p`` into ``folder``.
 
-    Returns the two paths.  Both files are written atomically.
+    Both headers name the study, and say that the data is invented when ``invented``.  Returns the
+    two paths.  Both files are written atomically.
     """
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
     z = problem.z_sys
     common = [
         f"optmatch study: {problem.name}",
+        *([INVENTED_NOTE] if invented else []),
         f"design rank {rank}: margin {design.margin_db:+.2f} dB against the mask",
         f"reference impedance {z:g} ohm",
     ]
     network_lines = [
-        *common[:2],
+        *common[:-1],
         "matching network alone, 2-port",
         "port 1 faces the source (input), port 2 faces the load",
         f"both ports referenced to {z:g} ohm",
