@@ -26,7 +26,7 @@ from optmatch.io.atomic import save_figure_atomic, write_bytes_atomic, write_jso
 from optmatch.outputs.document import ResultsFileError, read_batch_state, read_summary, to_json
 from optmatch.outputs.network_export import export_touchstone, matched_input, network_sparams
 from optmatch.outputs.plots import Caption, mask_spans, plot_pareto, plot_return_loss, plot_smith
-from optmatch.outputs.tables import design_rows, summary_markdown, write_designs_csv
+from optmatch.outputs.tables import design_rows, mask_text, summary_markdown, write_designs_csv
 from optmatch.running.results import data_is_invented, summary_document
 from optmatch.running.search import SearchOutcome
 from optmatch.studyfile.loader import SearchSettings, Study
@@ -383,6 +383,7 @@ def test_load_block_and_mask_show_return_loss_and_vswr():
     assert doc.mask[0].max_vswr == pytest.approx((1 + 10 ** -0.75) / (1 - 10 ** -0.75), rel=1e-12)
     text = summary_markdown(doc)
     assert "| 15 | 1.43 |" in text and "60.00 − j80.00" in text and "Unmatched margin" in text
+    assert mask_text(doc.mask) == "425.242–442.598 MHz: return loss ≥ 15 dB (VSWR ≤ 1.43)"
 
 
 def test_invented_rule_reaches_plot_captions_and_touchstone(tmp_path):

@@ -20,6 +20,7 @@ from optmatch.outputs.tables import (
     design_cells,
     load_cells,
     load_sentence,
+    mask_text,
 )
 from optmatch.studyfile.loader import StudyFileError, check_study, load_study
 
@@ -71,6 +72,7 @@ def print_summary(doc: SummaryDoc) -> None:
     """The closing report: the load alone, the ranked designs, the build sheet and the verdict."""
     out = console()
     out.print(_rows(_table(LOAD_HEAD, "lrrrr", f"{doc.study}: the load alone (no network)"), load_cells(doc.load)))
+    out.print(Text(f"mask: {mask_text(doc.mask)}"))
     out.print(Text(load_sentence(doc.load)))
     if doc.designs:
         ranked = f"ranked by {doc.ranked_by}" + (", within the ratings first" if doc.drive_w is not None else "")

@@ -37,6 +37,7 @@ from optmatch.outputs.tables import (
     design_cells,
     load_cells,
     load_sentence,
+    mask_text,
     mhz,
     num,
 )
@@ -302,6 +303,7 @@ def study_html(row: Row, folder: Path) -> str:
              ("Worst return loss", f"{num(best.worst_return_loss_db, '.2f')} dB at {best.worst_freq_hz / 1e6:.2f} MHz"
               if best else DASH),
              ("Total length", _e(_length_text(s))), ("System impedance", f"{s.system_ohm:g} Ω"),
+             ("Mask", _e(mask_text(s.mask))),
              ("Electrical lengths at", _e(mhz(s.reference_hz))), ("Ranked by", _e(s.ranked_by)),
              ("Trials", str(s.search.trials_complete)), ("Study file", _e(s.file or row.file))]
     if s.invented:
@@ -364,7 +366,8 @@ def study_markdown(row: Row, folder: Path) -> str:
     lines = [f"# {md(row.name)}", "", f"[← all studies](../{REPORT_MD})", ""]
     if s.description:
         lines += [md_block(s.description), ""]
-    lines += [f"**Verdict: {s.verdict}.** {md(s.verdict_line)}", "", f"- Total length: {_length_text(s)}",
+    lines += [f"**Verdict: {s.verdict}.** {md(s.verdict_line)}", "", f"- Mask: {mask_text(s.mask)}",
+              f"- Total length: {_length_text(s)}",
               f"- Electrical lengths at {mhz(s.reference_hz)}", ""]
     if s.invented:
         lines += ["*The study says its data is invented: not a measurement.*", ""]

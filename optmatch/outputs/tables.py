@@ -108,6 +108,16 @@ def mask_cells(mask: Sequence[MaskSegment]) -> list[list[str]]:
             for s in mask]
 
 
+def mask_text(mask: Sequence[MaskSegment]) -> str:
+    """The mask in one line, each segment as return loss and VSWR: ``420.000–450.000 MHz: RL ≥ 15 dB (VSWR ≤ 1.43)``."""
+    parts = []
+    for s in mask:
+        span = mhz(s.f_lo_hz) if s.f_lo_hz == s.f_hi_hz else f"{s.f_lo_hz / 1e6:.3f}–{mhz(s.f_hi_hz)}"
+        loss = f", network loss ≤ {s.max_loss_db:g} dB" if s.max_loss_db is not None else ""
+        parts.append(f"{span}: return loss ≥ {s.min_rl_db:g} dB (VSWR ≤ {num(s.max_vswr, '.3g')}){loss}")
+    return "; ".join(parts)
+
+
 LOAD_HEAD = ("where", "frequency", "impedance (Ω)", "return loss (dB)", "VSWR")
 
 
