@@ -14,7 +14,7 @@ Units: Hz, Ω, s, V and A as peak phasor magnitudes (peak RF values), W (average
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -174,16 +174,16 @@ def check_ratings(result: DriveResult, cables: Mapping[int, Cable],
         if cable is None and connector_v is None:
             continue
         jv = int(np.argmax(sec.voltage_v))
-        common = dict(index=sec.index, cable=None if cable is None else cable.name,
-                      peak_voltage_v=float(sec.voltage_v[jv]), voltage_freq_hz=float(result.freq[jv]),
-                      peak_current_a=float(np.max(sec.current_a)), dissipated_w=float(np.max(sec.dissipated_w)),
-                      open_end_v=None if sec.open_end_v is None else float(np.max(sec.open_end_v)),
-                      connector_max_voltage_v=connector_v)
-        if cable is None:
-            out.append(RatingCheck(**common))
-            continue
-        rating = np.asarray(cable.power_rating_w(result.freq), dtype=float)
-        jh = int(np.argmax(sec.heating_w / rating))
-        out.append(RatingCheck(**common, max_voltage_v=float(cable.max_voltage_v), heating_w=float(sec.heating_w[jh]),
-                               heating_freq_hz=float(result.freq[jh]), power_rating_w=float(rating[jh])))
+        check = RatingCheck(index=sec.index, cable=None, peak_voltage_v=float(sec.voltage_v[jv]),
+                            voltage_freq_hz=float(result.freq[jv]), peak_current_a=float(np.max(sec.current_a)),
+                            dissipated_w=float(np.max(sec.dissipated_w)),
+                            open_end_v=None if sec.open_end_v is None else float(np.max(sec.open_end_v)),
+                            connector_max_voltage_v=connector_v)
+        if cable is not None:
+            rating = np.asarray(cable.power_rating_w(result.freq), dtype=float)
+            jh = int(np.argmax(sec.heating_w / rating))
+            check = replace(check, cable=cable.name, max_voltage_v=float(cable.max_voltage_v),
+                            heating_w=float(sec.heating_w[jh]), heating_freq_hz=float(result.freq[jh]),
+                            power_rating_w=float(rating[jh]))
+        out.append(check)
     return out

@@ -233,7 +233,7 @@ def power_check(study: Study, design: Design) -> PowerCheck | None:
             if chk.voltage_ok is False:
                 over.append(f"{what}: peak RF voltage {chk.peak_voltage_v:.0f} V at {_mhz(chk.voltage_freq_hz)}, "
                             f"above the cable's {chk.max_voltage_v:.0f} V peak rating")
-            if chk.power_ok is False:
+            if chk.power_ok is False and chk.heating_freq_hz is not None:
                 over.append(f"{what}: heats like {chk.heating_w:.0f} W in a matched line at "
                             f"{_mhz(chk.heating_freq_hz)}, above the cable's {chk.power_rating_w:.0f} W rating there")
             if chk.connector_ok is False:
