@@ -366,7 +366,7 @@ def study_markdown(row: Row, folder: Path) -> str:
     lines = [f"# {md(row.name)}", "", f"[← all studies](../{REPORT_MD})", ""]
     if s.description:
         lines += [md_block(s.description), ""]
-    lines += [f"**Verdict: {s.verdict}.** {md(s.verdict_line)}", "", f"- Mask: {mask_text(s.mask)}",
+    lines += [f"**Verdict:** {md(s.verdict_line)}", "", f"- Mask: {mask_text(s.mask)}",
               f"- Total length: {_length_text(s)}",
               f"- Electrical lengths at {mhz(s.reference_hz)}", ""]
     if s.invented:

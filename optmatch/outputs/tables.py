@@ -268,7 +268,7 @@ def summary_markdown(doc: SummaryDoc) -> str:
     lines: list[str] = [f"# Matching study: {md(doc.study)}", ""]
     if doc.description:
         lines += [md_block(doc.description), ""]
-    lines += [f"**Verdict: {doc.verdict}.** {md(doc.verdict_line)}", ""]
+    lines += [f"**Verdict:** {md(doc.verdict_line)}", ""]
     if doc.invented:
         lines += ["*The study says its data is invented: these results are not about a measured device.*", ""]
 
