@@ -400,3 +400,23 @@ def test_invented_rule_reaches_plot_captions_and_touchstone(tmp_path):
         head = path.read_text()
         assert "optmatch study: invented test" in head and "INVENTED data" in head
     assert Caption("x", True).text().endswith("INVENTED data (the study says so): not a measurement")
+
+
+def test_results_evaluate_each_design_once(tmp_path, monkeypatch):
+    import optmatch.running.build as build_module
+    import optmatch.running.results as results_module
+
+    problem, design = mixed_problem()
+    second = _design(problem, design.choice, [fp.bound.from_unit(0.5) for fp in problem.network.free])
+    calls = []
+
+    def counted(p, d):
+        calls.append(d)
+        return performance(p, d)
+
+    monkeypatch.setattr(results_module, "performance", counted)
+    monkeypatch.setattr(build_module, "performance", counted)
+    folder, doc = results_module.write_results(_study(problem), _outcome([design, second]), tmp_path)
+    # one band evaluation per design feeds the document, the plots, the build sheet and the exports
+    assert sorted(map(id, calls)) == sorted([id(design), id(second)])
+    assert (folder / "summary.json").exists() and len(doc.designs) == 2
