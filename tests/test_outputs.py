@@ -10,19 +10,26 @@ from __future__ import annotations
 import csv
 import json
 import math
+from dataclasses import replace
+from pathlib import Path
 
 import numpy as np
 import pytest
 import skrf
 
-from optmatch.domain.design import Design, describe, performance
+from optmatch.domain.design import Design, bare_load, describe, performance
 from optmatch.domain.mask import Segment, build_grid
 from optmatch.domain.network import Bound, Choice, ElementSpec, Medium, NetworkSpec
 from optmatch.domain.problem import Problem
+from optmatch.domain.tolerance import Spread
 from optmatch.io.atomic import save_figure_atomic, write_bytes_atomic, write_json_atomic, write_text_atomic
+from optmatch.outputs.document import ResultsFileError, read_batch_state, read_summary, to_json
 from optmatch.outputs.network_export import export_touchstone, matched_input, network_sparams
-from optmatch.outputs.plots import mask_spans, plot_pareto, plot_return_loss, plot_smith
-from optmatch.outputs.tables import design_rows, design_summary, summary_markdown, write_designs_csv
+from optmatch.outputs.plots import Caption, mask_spans, plot_pareto, plot_return_loss, plot_smith
+from optmatch.outputs.tables import design_rows, mask_text, summary_markdown, write_designs_csv
+from optmatch.running.results import data_is_invented, summary_document
+from optmatch.running.search import SearchOutcome
+from optmatch.studyfile.loader import SearchSettings, Study
 
 C0 = 299_792_458.0  # m/s
 F_REF = 433.92e6
@@ -229,28 +236,41 @@ def test_plots_are_written_as_png(tmp_path):
     problem, design = mixed_problem()
     perfs = _ranked(problem, design)
     rl = plot_return_loss(perfs, problem.grid, tmp_path / "return_loss.png")
-    sm = plot_smith(perfs, tmp_path / "smith.png", problem.z_sys, min_rl_db=float(problem.grid.min_rl_db.max()))
+    sm = plot_smith(perfs, tmp_path / "smith.png", problem.z_sys, min_rl_db=float(problem.grid.min_rl_db.max()),
+                    load=bare_load(problem), caption=Caption("invented test", True))
     pts = [(-3.0 + 0.2 * i - 0.004 * i * i, 0.3 + 0.01 * i) for i in range(40)]  # (margin_db, length_wl)
     pa = plot_pareto(pts, pts[::5], tmp_path / "pareto.png")
     for path in (rl, sm, pa):
         assert _is_png(path)  # PNG specification, section 5.2: the eight-byte signature
-        assert _png_size(path) == (960, 600)  # 8 × 5 in at 120 dpi
+    assert _png_size(rl) == _png_size(pa) == (960, 600)  # 8 × 5 in at 120 dpi
+    assert _png_size(sm) == (1320, 720)  # 11 × 6 in at 120 dpi: the whole chart and the enlarged centre
 
 
-# ---------------------------------------------------------------- designs.csv and summary.md
+# ---------------------------------------------------------------- the summary document, designs.csv and summary.md
+
+
+def _study(problem: Problem, description: str = "Our own test scenario.", drive_w=None) -> Study:
+    return Study(path=Path("invented_test.yaml"), problem=problem, search=SearchSettings(keep=5),
+                 raw={"load": {"impedance": "60-j80"}}, digest="0" * 64, description=description, drive_w=drive_w,
+                 spread=Spread(samples=64))
+
+
+def _outcome(designs: list[Design]) -> SearchOutcome:
+    return SearchOutcome(designs=designs, pareto=[], all_points=[], trials_complete=len(designs), evaluations=10,
+                         elapsed_s=1.0, trial_time_s=1.0, seeds=[], stopped_early=False)
 
 
 def test_design_rows_and_csv_round_trip(tmp_path):
     problem, design = mixed_problem()
-    designs = [design, Design(design.choice, tuple(0.5 for _ in design.u), 0.0, 0.0)]
-    designs[1] = _design(problem, design.choice, [fp.bound.from_unit(0.5) for fp in problem.network.free])
-    rows = design_rows(problem, designs)
+    second = _design(problem, design.choice, [fp.bound.from_unit(0.5) for fp in problem.network.free])
+    doc = summary_document(_study(problem), _outcome([design, second]))
+    rows = design_rows(doc.designs)
     path = write_designs_csv(rows, tmp_path / "designs.csv")
     with path.open(newline="", encoding="utf-8") as fh:
         back = list(csv.DictReader(fh))
-    assert len(back) == len(designs)
-    assert [float(r["margin_db"]) for r in back] == [d.margin_db for d in designs]  # exact round trip
-    for row, d in zip(back, designs, strict=True):
+    assert len(back) == 2
+    assert [float(r["margin_db"]) for r in back] == [design.margin_db, second.margin_db]  # exact round trip
+    for row, d in zip(back, (design, second), strict=True):
         gamma = skrf_network(problem, d) ** _media(problem.grid.freq, 50.0, 50.0).load(
             (problem.zload - 50.0) / (problem.zload + 50.0))
         f_worst = float(row["worst_freq_hz"])
@@ -263,64 +283,140 @@ def test_design_rows_and_csv_round_trip(tmp_path):
     assert back[0]["e2_value_unit"] == "F" and float(back[0]["e2_value"]) == pytest.approx(3.3e-12, rel=1e-12)
 
 
-def _doc(problem: Problem, designs: list[Design]) -> dict:
-    return {
-        "name": problem.name,
-        "description": "Invented scenario for tests.",
-        "z_sys_ohm": problem.z_sys,
-        "load": "60 − j80 Ω, fixed",
-        "f_ref_hz": problem.f_ref,
-        "mask": [{"f_lo_hz": 0.98 * F_REF, "f_hi_hz": 1.02 * F_REF, "min_rl_db": 15.0}],
-        "designs": [design_summary(problem, d, rank) for rank, d in enumerate(designs, start=1)],
-        "search": {"trials": 12, "evaluations": 34567, "elapsed_s": 1.25},
-        "seeds": [7, "closed form"],
-        "warnings": ["an invented warning"],
-        "pareto": [{"margin_db": d.margin_db, "length_wl": d.length_wl} for d in designs],
-    }
+def test_summary_json_reads_back_to_the_same_document(tmp_path):
+    problem, design = mixed_problem()
+    doc = summary_document(_study(problem), _outcome([design]))
+    path = write_json_atomic(tmp_path / "summary.json", to_json(doc))
+    assert read_summary(path) == doc  # every field, nested records included, survives JSON
+    # identity: a perfect match has an infinite return loss, written as null and read back as inf
+    perfect = replace(doc, designs=(replace(doc.designs[0], worst_return_loss_db=math.inf),))
+    text = write_json_atomic(tmp_path / "perfect.json", to_json(perfect)).read_text()
+    assert '"worst_return_loss_db": null' in text
+    assert read_summary(tmp_path / "perfect.json").designs[0].worst_return_loss_db == math.inf
+
+
+@pytest.mark.parametrize("damage, key", [
+    (lambda d: d["designs"][0].__setitem__("margin_db", "abc"), "designs[0].margin_db: expected a number"),
+    (lambda d: d.pop("verdict"), "verdict: required key is missing"),
+    (lambda d: d.__setitem__("designs", "none"), "designs: expected a list"),
+    (lambda d: d["load"].__setitem__("points", [{"label": 1}]), "load.points[0].label: expected text"),
+    (lambda d: d.__setitem__("format", 1), "format: 1 is not the layout"),
+])
+def test_summary_of_the_wrong_shape_is_one_line_naming_the_key(tmp_path, damage, key):
+    problem = pozar_problem()
+    doc = json.loads(json.dumps(to_json(summary_document(_study(problem), _outcome([pozar_design(problem)]))),
+                                default=str))
+    damage(doc)
+    path = tmp_path / "summary.json"
+    path.write_text(json.dumps(doc), encoding="utf-8")
+    with pytest.raises(ResultsFileError) as err:
+        read_summary(path)
+    message = str(err.value)
+    assert message.startswith(f"{path}: {key}") and "\n" not in message
+
+
+@pytest.mark.parametrize("text, key", [
+    ("[1, 2]", "(top level): expected keys and values"),
+    ("{", "not JSON"),
+    ('{"studies": "x"}', "studies: expected a list"),
+    ('{"studies": [{"name": "../outside", "status": "done"}]}', "studies[0].name: '../outside' is not a study folder"),
+    ('{"studies": [{"status": "done"}]}', "studies[0].name: required key is missing"),
+])
+def test_batch_state_of_the_wrong_shape_is_one_line_naming_the_key(tmp_path, text, key):
+    path = tmp_path / "batch.json"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(ResultsFileError) as err:
+        read_batch_state(path)
+    assert str(err.value).startswith(f"{path}: {key}")
 
 
 def test_summary_markdown_verdict_and_tables():
     problem = pozar_problem()
     best = pozar_design(problem)
     second = _design(problem, best.choice, [0.259 / F_REF, 0.405 / F_REF])  # Pozar Ex. 5.2, second solution
-    text = summary_markdown(_doc(problem, [best, second]))
+    text = summary_markdown(summary_document(_study(problem), _outcome([best, second])))
     # Pozar 4th ed., Example 5.2 (recalled from memory): the shorter solution is the broader one and
     # meets 15 dB over ±2 % (common practice, no source); the verdict follows the engine's margin
-    assert best.margin_db > 0 and "**Verdict: PASS.**" in text and f"{best.margin_db:+.2f} dB" in text
-    ranked = [ln for ln in text.splitlines() if ln.startswith("| ") and "λ" in ln and ln.split("|")[1].strip().isdigit()]
-    assert len(ranked) == 2  # one row per design
+    assert best.margin_db > 0 and f"**Verdict:** PASS: the best design meets the mask by {best.margin_db:+.2f} dB" in text
+    ranked = text.split("## Ranked designs")[1].split("##")[0]
+    rows = [ln for ln in ranked.splitlines() if ln.startswith("| ") and ln.split("|")[1].strip().isdigit()]
+    assert len(rows) == 2  # one row per design, each naming Z0 so that designs read apart
+    assert all("50 Ω" in r for r in rows)
     assert "## Cautions" in text and "high RF voltage" in text and "licensed practice" in text
-    assert "(return_loss.png)" in text and "(smith.png)" in text and "(pareto.png)" in text
+    assert "(return_loss.png)" in text and "(smith.png)" in text and "(pareto.png)" not in text
 
     strict = pozar_problem([Segment(0.8 * F_REF, 1.2 * F_REF, 30.0)])
     failing = pozar_design(strict)
-    text = summary_markdown(_doc(strict, [failing]))
-    assert failing.margin_db < 0 and "**Verdict: FAIL.**" in text  # a single stub cannot hold 30 dB over ±20 %
+    text = summary_markdown(summary_document(_study(strict), _outcome([failing])))
+    # a single stub cannot hold 30 dB over ±20 %
+    assert failing.margin_db < 0 and "**Verdict:** FAIL: the best design misses the mask" in text
 
 
-def test_best_design_table_lists_elements_load_outwards():
+def test_build_sheet_lists_pieces_load_outwards_in_mm():
     problem = pozar_problem()
     design = pozar_design(problem)
-    text = summary_markdown(_doc(problem, [design]))
+    text = summary_markdown(summary_document(_study(problem), _outcome([design])))
     reports = describe(problem, design)
-    section = text.split("## Best design")[1].split("##")[0]
+    section = text.split("## Build sheet")[1].split("##")[0]
     rows = [ln for ln in section.splitlines() if ln.startswith("| ") and ln.split("|")[1].strip().isdigit()]
     assert [int(r.split("|")[1]) for r in rows] == [r.index + 1 for r in reports]  # numbered from 1, as the cut list
-    # Pozar 4th ed., Example 5.2 (recalled from memory): 0.110 λ = 39.60°, stub 0.095 λ = 34.20°
-    assert "39.60" in rows[0] and "34.20" in rows[1] and "short end" in rows[1]
+    # Pozar 4th ed., Example 5.2 (recalled from memory): 0.110 λ = 39.6°, stub 0.095 λ = 34.2°
+    assert "| 39.6 |" in rows[0] and "| 34.2 |" in rows[1] and "| short |" in rows[1]
+    # definition: a wavelength in air at 433.92 MHz is c / f = 690.9 mm; 0.110 λ of it is 76.0 mm
+    assert f"| {0.110 * C0 / F_REF * 1e3:.1f} |" in rows[0]
+    assert "No connector allowances are given" in section
+    assert "short its far end" in section and "At the source: a tee" in section
 
 
-def test_summary_accepts_the_study_writer_key_names():
+def test_load_block_and_mask_show_return_loss_and_vswr():
     problem = pozar_problem()
-    design = pozar_design(problem)
-    entry = design_summary(problem, design, 1)
-    entry["worst_return_loss_db"], entry["total_length_wl"] = entry.pop("worst_rl_db"), entry.pop("length_wl")
-    doc = {"study": "alias-test", "system_ohm": 50.0, "reference_hz": F_REF, "designs": [entry],
-           "mask": [{"from": "425MHz", "to": "0.4426GHz", "return_loss": 15}],
-           "inputs": {"load": {"impedance": "60-80j"}},
-           "search": {"trials_complete": 3, "evaluations": 10, "elapsed_s": 0.5, "seeds": ["closed form"]}}
+    doc = summary_document(_study(problem), _outcome([pozar_design(problem)]))
+    gamma = abs((60 - 80j - 50) / (60 - 80j + 50))
+    for p in doc.load.points:
+        assert (p.r_ohm, p.x_ohm) == (60.0, -80.0)
+        # definitions: RL = −20·log10|Γ|, VSWR = (1 + |Γ|) / (1 − |Γ|)
+        assert p.return_loss_db == pytest.approx(-20 * math.log10(gamma), rel=1e-12)
+        assert p.vswr == pytest.approx((1 + gamma) / (1 - gamma), rel=1e-12)
+    assert [p.label for p in doc.load.points] == ["low edge", "centre", "high edge"]
+    assert doc.load.unmatched_margin_db == pytest.approx(-20 * math.log10(gamma) - 15.0, rel=1e-12)
+    assert not doc.load.meets_mask and not doc.no_network_needed
+    # 15 dB return loss is |Γ| = 0.1778, VSWR 1.433 (the same definitions)
+    assert doc.mask[0].max_vswr == pytest.approx((1 + 10 ** -0.75) / (1 - 10 ** -0.75), rel=1e-12)
     text = summary_markdown(doc)
-    # unit arithmetic (SI prefixes, common practice): 0.4426 GHz = 442.600 MHz
-    assert "| 425.000 MHz | 442.600 MHz | 15 | – |" in text
-    assert f"{entry['worst_return_loss_db']:.2f} dB" in text and "Trials: 3" in text and "impedance: 60-80j" in text
-    assert "(pareto.png)" not in text  # no Pareto front in this document, so no link to a plot never drawn
+    assert "| 15 | 1.43 |" in text and "60.00 − j80.00" in text and "Unmatched margin" in text
+    assert mask_text(doc.mask) == "425.242–442.598 MHz: return loss ≥ 15 dB (VSWR ≤ 1.43)"
+
+
+def test_invented_rule_reaches_plot_captions_and_touchstone(tmp_path):
+    problem, design = mixed_problem()
+    assert summary_document(_study(problem, "Our INVENTED load."), _outcome([design])).invented
+    assert not summary_document(_study(problem, "A measured load."), _outcome([design])).invented
+    ts = tmp_path / "load.s1p"
+    ts.write_text("! made up for this test: invented\n# MHz S RI R 50\n400 0.1 0\n500 0.1 0\n", encoding="utf-8")
+    study = replace(_study(problem, "A load."), path=tmp_path / "s.yaml", raw={"load": {"touchstone": "load.s1p"}})
+    assert data_is_invented(study)
+    s2p, s1p = export_touchstone(problem, design, tmp_path / "out", invented=True)
+    for path in (s2p, s1p):
+        head = path.read_text()
+        assert "optmatch study: invented test" in head and "INVENTED data" in head
+    assert Caption("x", True).text().endswith("INVENTED data (the study says so): not a measurement")
+
+
+def test_results_evaluate_each_design_once(tmp_path, monkeypatch):
+    import optmatch.running.build as build_module
+    import optmatch.running.results as results_module
+
+    problem, design = mixed_problem()
+    second = _design(problem, design.choice, [fp.bound.from_unit(0.5) for fp in problem.network.free])
+    calls = []
+
+    def counted(p, d):
+        calls.append(d)
+        return performance(p, d)
+
+    monkeypatch.setattr(results_module, "performance", counted)
+    monkeypatch.setattr(build_module, "performance", counted)
+    folder, doc = results_module.write_results(_study(problem), _outcome([design, second]), tmp_path)
+    # one band evaluation per design feeds the document, the plots, the build sheet and the exports
+    assert sorted(map(id, calls)) == sorted([id(design), id(second)])
+    assert (folder / "summary.json").exists() and len(doc.designs) == 2

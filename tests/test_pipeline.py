@@ -56,14 +56,14 @@ def test_results_folder_is_complete_and_consistent(tmp_path):
     s1p = skrf.Network(str(folder / "matched_input.s1p"))
     gamma = pb.response(design.vector(), design.choice).gamma[0]
     assert np.allclose(s1p.s[:, 0, 0], gamma, atol=1e-8)
-    assert doc["verdict"] in ("PASS", "FAIL")
+    assert doc.verdict in ("PASS", "FAIL")
 
 
 def test_rerun_resumes_from_the_journal(tmp_path):
     path = _write(tmp_path)
     run_study(load_study(path), tmp_path / "results")
     folder, doc = run_study(load_study(path), tmp_path / "results")
-    assert doc["search"]["trials_complete"] == 3  # budget already met: nothing redone
+    assert doc.search.trials_complete == 3  # budget already met: nothing redone
     storage = optuna.storages.JournalStorage(optuna.storages.journal.JournalFileBackend(str(folder / "search.journal")))
     (summary,) = optuna.get_all_study_summaries(storage)
     assert summary.n_trials == 3
@@ -72,7 +72,7 @@ def test_rerun_resumes_from_the_journal(tmp_path):
 def test_pareto_front_is_non_dominated(tmp_path):
     text = STUDY.replace("search: {", "search: {objective: pareto, ").replace("trials: 3", "trials: 8")
     folder, doc = run_study(load_study(_write(tmp_path, text)), tmp_path / "results")
-    front = [(p["margin_db"], p["total_length_wl"]) for p in doc["pareto"]]
+    front = [(p.margin_db, p.total_length_wl) for p in doc.pareto]
     assert len(front) >= 1 and (folder / "pareto.png").exists()
     for m, length in front:  # definition of a Pareto front: nobody is better on both counts
         assert not any(m2 >= m and l2 <= length and (m2, l2) != (m, length) for m2, l2 in front)

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from optmatch.domain.power import check_ratings, drive
-from optmatch.engine import Stage
+from optmatch.engine import Stage, evaluate
 from optmatch.io.catalog import shipped_catalog
 
 F = np.array([300e6, 435e6, 500e6])
@@ -75,3 +75,24 @@ def test_overdriven_cable_fails_its_rating():
     assert not high.voltage_ok and not high.power_ok
     # voltage scales as √P (identity: the network is linear)
     assert high.peak_voltage_v / low.peak_voltage_v == pytest.approx(math.sqrt(10000.0), rel=1e-9)
+
+
+def test_drive_agrees_with_the_engine_on_a_mixed_lossy_network():
+    # series open stub, shunt short stub, lumped parts and lossy lines on a reactive load
+    stages = [Stage("line"), Stage("stub", "series"), Stage("lumped", "shunt", "c"), Stage("lumped", "series", "l"),
+              Stage("stub", "shunt"), Stage("line")]
+    params = [{"z0": 75.0, "delay": 0.31e-9, "loss_c": 2e-6, "loss_d": 1e-11},
+              {"z0": 62.0, "delay": 0.17e-9, "short": False},
+              {"value": 3.3e-12}, {"value": 12e-9},
+              {"z0": 50.0, "delay": 0.4e-9, "short": True, "loss_c": 1e-6},
+              {"z0": 50.0, "delay": 0.2e-9}]
+    zl = 22.0 + 1j * (2 * np.pi * F * 35e-9 - 1 / (2 * np.pi * F * 8e-12))
+    res = drive(stages, params, F, zl, 50.0, P)
+    ref = evaluate(stages, params, F, zl, 50.0)
+    # power balance at the input (definition of Γ): the network accepts (1 − |Γ|²) of the available power
+    np.testing.assert_allclose(res.accepted_w, P * (1 - ref.gamma_sq[0]), rtol=1e-9)
+    # and the load receives the engine's delivered share (the same walk, read at the load end)
+    np.testing.assert_allclose(res.delivered_w, P * ref.delivered[0], rtol=1e-9)
+    # identity: what the network accepts is what reaches the load plus what its lossy sections turn to heat
+    lost = sum(s.dissipated_w for s in res.sections)
+    np.testing.assert_allclose(res.accepted_w - res.delivered_w, lost, rtol=1e-6)

@@ -20,7 +20,6 @@ import pytest
 from test_storage import write_study
 
 from optmatch.cli.main import main
-from optmatch.io.atomic import write_json_atomic
 from optmatch.outputs.report import write_report
 from optmatch.running.batch import run_batch
 
@@ -75,10 +74,6 @@ def results(tmp_path_factory: pytest.TempPathFactory) -> Path:
     write_study(folder, "beta", trials=2)
     (folder / "gamma.yaml").write_text("name: gamma\nload: {impedance: 50}\n", encoding="utf-8")
     run_batch(folder, out)
-    # alpha as results written before summary.json carried a cut list: the report shows a dash.
-    doc = json.loads((out / "alpha" / "summary.json").read_text())
-    doc.pop("cut_list", None)
-    write_json_atomic(out / "alpha" / "summary.json", doc)
     write_report(out)
     return out
 
@@ -95,11 +90,8 @@ def test_one_row_per_study_with_figures_from_the_summaries(results: Path) -> Non
         assert row[2] == "PASS" and summary["verdict"] == "PASS"
         assert float(row[3]) == pytest.approx(summary["best_margin_db"], abs=0.005)
         assert row[4].startswith(f"{summary['designs'][0]['total_length_wl']:.3f} λ")
-    beta = json.loads((results / "beta" / "summary.json").read_text())
-    pieces = beta.get("cut_list", {}).get("pieces") if isinstance(beta.get("cut_list"), dict) else beta.get("cut_list")
-    # The cut-list size is the number of pieces in summary.json, or a dash where there is none.
-    assert by_name["beta"][5] == (str(len(pieces)) if pieces is not None else "–")
-    assert by_name["alpha"][5] == "–"
+        # the cut-list size is the number of pieces in the summary's build sheet
+        assert row[5] == str(len(summary["build"]["pieces"]))
     assert by_name["gamma"][1] == "error" and "network" in by_name["gamma"][0]
     md_rows = [line for line in (results / "report.md").read_text().splitlines()
                if line.startswith("| ") and not line.startswith("| Study") and "---" not in line]
@@ -151,3 +143,43 @@ def test_report_loads_in_headless_chromium(results: Path, tmp_path: Path) -> Non
     head = shot.read_bytes()[:24]
     assert head[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG specification, ISO/IEC 15948)
     assert struct.unpack(">II", head[16:24]) == (1280, 900)
+
+
+def _copy(results: Path, tmp_path: Path) -> Path:
+    root = tmp_path / "copy"
+    shutil.copytree(results, root)
+    return root
+
+
+def test_report_over_files_of_the_wrong_shape(results: Path, tmp_path: Path, capsys: pytest.CaptureFixture) -> None:
+    root = _copy(results, tmp_path)
+    doc = json.loads((root / "alpha" / "summary.json").read_text())
+    doc["designs"][0]["margin_db"] = "high"
+    (root / "alpha" / "summary.json").write_text(json.dumps(doc))
+    (root / "batch.json").write_text(json.dumps({"studies": {"name": "alpha"}}))
+    assert main(["report", str(root)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    # one line per unreadable file, naming the file and the key; no traceback
+    assert sorted(err) == sorted([
+        f"optmatch: error: {root / 'batch.json'}: studies: expected a list, got {{'name': 'alpha'}}",
+        f"optmatch: error: {root / 'alpha' / 'summary.json'}: designs[0].margin_db: expected a number, got 'high'",
+    ])
+    page = parse((root / "report.html").read_text(encoding="utf-8"))
+    by_name = {r[0].split()[0]: r for r in page.rows}
+    assert by_name["alpha"][1] == "error" and "designs[0].margin_db" in by_name["alpha"][0]
+    assert by_name["beta"][1] == "done" and by_name["beta"][2] == "PASS"  # the rest of the report stands
+
+
+def test_report_counts_a_journal_without_results_as_not_finished(results: Path, tmp_path: Path) -> None:
+    root = _copy(results, tmp_path)
+    (root / "batch.json").unlink()
+    (root / "delta").mkdir()
+    (root / "delta" / "search.journal").write_text("")
+    assert main(["report", str(root)]) == 0
+    page = parse((root / "report.html").read_text(encoding="utf-8"))
+    by_name = {r[0].split()[0]: r for r in page.rows}
+    assert by_name["delta"][1] == "not finished"
+    tiles = {text: int(n) for n, text in
+             re.findall(r'<div class="tile"><b>(\d+)</b><span>([^<]+)</span>', (root / "report.html").read_text())}
+    assert tiles["not finished"] == 1 and tiles["studies"] == 3  # alpha, beta and delta
+    assert "1 not finished" in (root / "report.md").read_text()

@@ -16,7 +16,7 @@ from optmatch.domain.design import describe
 from optmatch.domain.microstrip import Substrate, printed_line
 from optmatch.domain.network import Bound, ElementSpec, Medium, NetworkSpec
 from optmatch.engine import evaluate
-from optmatch.running.build import build_view
+from optmatch.running.build import build_sheet, power_check, rating_warnings
 from optmatch.running.search import run_search
 from optmatch.studyfile.loader import StudyFileError, load_study
 from optmatch.units import C0
@@ -178,8 +178,8 @@ def test_microstrip_element_velocity_and_width(tmp_path):
     # VF = 1/√ε_eff of the strip (quasi-static, checked against scikit-rf in test_microstrip)
     assert rep.vf == pytest.approx(1 / math.sqrt(ref.er_eff), rel=1e-12)
     assert rep.physical_m == pytest.approx(ref.length_m, rel=1e-12)
-    rows, _ = build_view(study, _fixed_design(study))
-    assert rows["pieces"][0]["width_mm"] == pytest.approx(ref.width_m * 1e3, abs=1e-3)
+    sheet = build_sheet(study, _fixed_design(study))
+    assert sheet.pieces[0].width_mm == pytest.approx(ref.width_m * 1e3, abs=1e-3)
 
 
 def _fixed_design(study):
@@ -198,8 +198,8 @@ def test_overdriven_design_is_flagged(tmp_path):
             - shunt_stub: {length: 60deg, end: open, cable: RG-174-class}
         search: {trials: 1}
         """
-    warn_low = build_view(s := study_of(tmp_path, body.replace("POWER", "1W")), _fixed_design(s))[1]
-    warn_high = build_view(s := study_of(tmp_path, body.replace("POWER", "5kW")), _fixed_design(s))[1]
+    warn_low = rating_warnings(power_check(s := study_of(tmp_path, body.replace("POWER", "1W")), _fixed_design(s)))
+    warn_high = rating_warnings(power_check(s := study_of(tmp_path, body.replace("POWER", "5kW")), _fixed_design(s)))
     # RG-174-class is rated near 1.6 kV peak and some tens of watts at UHF (catalog, typical of the class,
     # recalled from memory); 5 kW into a stub network far exceeds that, 1 W does not
     assert warn_low == []

@@ -257,7 +257,7 @@ def cli_run(tmp_path_factory):
     path.write_text(CLI_STUDY)
     study = load_study(path)
     folder, doc = run_study(study, base / "results")
-    assert doc["designs"][0]["margin_db"] > 0.5  # precondition: the design meets its mask
+    assert doc.designs[0].margin_db > 0.5  # precondition: the design meets its mask
     return path, folder
 
 

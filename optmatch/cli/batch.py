@@ -168,10 +168,15 @@ def run_report_command(args: argparse.Namespace) -> int:
     if not args.folder.is_dir():
         print(f"optmatch: error: {args.folder}: not a folder", file=sys.stderr)
         return EXIT_ERRORS
-    if not collect_rows(args.folder):
-        print(f"optmatch: error: {args.folder}: no study results (*/summary.json) or batch.json found",
+    rows, problems = collect_rows(args.folder)
+    if not rows:
+        for line in problems:
+            print(f"optmatch: error: {line}", file=sys.stderr)
+        print(f"optmatch: error: {args.folder}: no study results (*/summary.json), journals or batch.json found",
               file=sys.stderr)
         return EXIT_ERRORS
-    html_path, md_path = write_report(args.folder)
-    print(f"report: {html_path}  (markdown: {md_path})")
-    return 0
+    written = write_report(args.folder)
+    for line in written.problems:  # unreadable results files: their rows say so, and the exit code
+        print(f"optmatch: error: {' '.join(line.split())}", file=sys.stderr)
+    print(f"report: {written.html}  (markdown: {written.markdown})")
+    return EXIT_ERRORS if written.problems else 0

@@ -3,14 +3,28 @@
 from __future__ import annotations
 
 import argparse
-import json
+from collections.abc import Sequence
 from pathlib import Path
 
+from rich.table import Table
+from rich.text import Text
+
 from optmatch.cli.check import run_check
-from optmatch.cli.terminal import console, progress, table
+from optmatch.cli.terminal import console, progress
+from optmatch.outputs.document import SummaryDoc, passes
+from optmatch.outputs.tables import (
+    BUILD_HEAD,
+    DESIGN_HEAD,
+    LOAD_HEAD,
+    build_cells,
+    design_cells,
+    load_cells,
+    load_sentence,
+    mask_text,
+)
 from optmatch.studyfile.loader import StudyFileError, load_study
 
-EXIT_FAILS_MASK = 1
+EXIT_FAILS_MASK = 1  # the study ran, but its verdict is not PASS (misses the mask, or over a rating)
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -26,31 +40,47 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--storage", default=None,
                    help="optuna storage URL (default: a journal file in the study's results folder)")
     p.add_argument("--json", action="store_true", help="print summary.json to stdout at the end")
-    p.add_argument("--quiet", action="store_true", help="no progress bar or table")
+    p.add_argument("--quiet", action="store_true", help="no progress bar or tables: one line with the verdict")
     p.set_defaults(handler=run_run)
 
 
-def print_designs(doc: dict) -> None:
-    """Closing table of the best designs."""
+def _table(head: Sequence[str], align: str, title: str) -> Table:
+    """A terminal table; ``align`` has one letter per column (``l`` wraps, ``r`` is a number)."""
+    tab = Table(title=title, show_lines=False, header_style="bold", title_justify="left")
+    for col, a in zip(head, align, strict=True):
+        tab.add_column(col, justify="right" if a == "r" else "left", no_wrap=a == "r")
+    return tab
+
+
+def _rows(tab: Table, rows: Sequence[Sequence[str]]) -> Table:
+    for row in rows:
+        tab.add_row(*(Text(str(c)) for c in row))  # user text is never read as markup
+    return tab
+
+
+def print_summary(doc: SummaryDoc) -> None:
+    """The closing report: the load alone, the ranked designs, the build sheet and the verdict."""
     out = console()
-    tab = table("rank", "verdict", "elements (load outwards)", "margin dB", "worst RL dB", "at MHz", "length λ",
-                "yield", title=f"{doc['study']}: best designs")
-    for d in doc["designs"]:
-        parts = []
-        for e in d["elements"]:
-            if e["kind"] == "lumped":
-                parts.append(f"{e['connection']} {e['part'].upper()} {e['value']:.3g}")
-            else:
-                label = e["kind"].replace("_stub", " stub") + (f" ({e['end']})" if e["end"] else "")
-                parts.append(f"{label} {e['electrical_deg']:.1f}° {e['z0_ohm']:.0f}Ω")
-        tab.add_row(str(d["rank"]), "PASS" if d["passes"] else "FAIL", " · ".join(parts),
-                    f"{d['margin_db']:+.2f}", f"{d['worst_return_loss_db']:.2f}",
-                    f"{d['worst_freq_hz'] / 1e6:.2f}", f"{d['total_length_wl']:.3f}",
-                    f"{100 * d['robustness']['yield_frac']:.0f}%" if d.get("robustness") else "–")
-    out.print(tab)
-    out.print("yield: share of simulated builds (cut, velocity-factor and Z0 spreads) that still meet the mask")
-    for w in doc.get("warnings", []):
-        out.print(f"[bold red]warning:[/] {w}")
+    out.print(_rows(_table(LOAD_HEAD, "lrrrr", f"{doc.study}: the load alone (no network)"), load_cells(doc.load)))
+    out.print(Text(f"mask: {mask_text(doc.mask)}"))
+    out.print(Text(load_sentence(doc.load)))
+    if doc.designs:
+        ranked = f"ranked by {doc.ranked_by}" + (", within the ratings first" if doc.drive_w is not None else "")
+        out.print(_rows(_table(DESIGN_HEAD, "llrrrrrl", f"{doc.study}: best designs ({ranked})"),
+                        [design_cells(d) for d in doc.designs]))
+        out.print("yield: share of simulated builds (cut, velocity-factor and Z0 spreads) that still meet the mask")
+    if doc.build is not None and doc.build.pieces:
+        title = (f"build sheet of the design ranked {doc.build.design_rank} "
+                 f"(electrical lengths at {doc.reference_hz / 1e6:.3f} MHz)")
+        out.print(_rows(_table(BUILD_HEAD, "rllrlrrr", title), build_cells(doc.build)))
+        out.print(Text(doc.build.allowances))
+        out.print("assembly, from the load to the source:")
+        for k, step in enumerate(doc.build.assembly, start=1):
+            out.print(Text(f"  {k}. {step}"))
+    for w in doc.warnings:
+        out.print(Text.assemble(("warning: ", "bold red"), w))
+    style = "bold green" if passes(doc.verdict) else "bold red"
+    out.print(Text.assemble(("verdict: ", "bold"), (doc.verdict_line, style)))
 
 
 def run_run(args: argparse.Namespace) -> int:
@@ -72,13 +102,15 @@ def run_run(args: argparse.Namespace) -> int:
 
             folder, doc = run_study(study, args.out, args.storage, progress_fn=report)
     if args.json:
-        print(json.dumps(doc, indent=2, default=str))
-    elif not args.quiet:
-        print_designs(doc)
-        console().print(f"results: {folder}")
+        print((folder / "summary.json").read_text(encoding="utf-8"), end="")
+    elif args.quiet:
+        print(f"{doc.study}: {doc.verdict_line}")
+    else:
+        print_summary(doc)
+        console().print(Text(f"results: {folder}"))
         if (folder / "cut_list.md").exists():
-            console().print(f"cut list: {folder / 'cut_list.md'}")
-    return 0 if doc["verdict"] == "PASS" else EXIT_FAILS_MASK
+            console().print(Text(f"cut list: {folder / 'cut_list.md'}"))
+    return 0 if passes(doc.verdict) else EXIT_FAILS_MASK
 
 
 __all__ = ["StudyFileError", "register"]

@@ -27,6 +27,7 @@ from optmatch.domain.loads import TabulatedLoad
 from optmatch.domain.network import Choice
 from optmatch.errors import OptmatchError
 from optmatch.io.touchstone import read_one_port
+from optmatch.outputs.document import read_summary
 from optmatch.outputs.trim_report import (
     TRIM_MD,
     TRIM_PNG,
@@ -78,7 +79,7 @@ class Built:
 
 
 def read_results(folder: Path, rank: int) -> Built:
-    """The one place that reads a results folder.
+    """The one place that reads a results folder: its typed summary document.
 
     From ``summary.json``: the study file (``file``), its ``inputs_digest``, the names of the study's own
     ``files``, and design ``rank``'s ``choice`` and ``u``.  The study is loaded again and must still
@@ -92,40 +93,16 @@ def read_results(folder: Path, rank: int) -> Built:
                              "finished)")
     if summary.stat().st_size > MAX_SUMMARY_BYTES:
         raise TrimInputError(f"{summary}: larger than {MAX_SUMMARY_BYTES // 2**20} MiB; not a study summary")
-    try:
-        doc = json.loads(summary.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise TrimInputError(f"{summary}: not readable JSON ({exc})") from None
-    if not isinstance(doc, dict):
-        raise TrimInputError(f"{summary}: expected an object at the top level")
-
-    def need(obj: dict, key: str, kind: type | tuple[type, ...], where: str) -> object:
-        value = obj.get(key)
-        if not isinstance(value, kind) or isinstance(value, bool) and kind is not bool:
-            raise TrimInputError(f"{summary}: {where}{key}: missing or not {getattr(kind, '__name__', 'valid')}")
-        return value
-
-    file = str(need(doc, "file", str, ""))
-    digest = need(doc, "inputs_digest", str, "")
-    designs = need(doc, "designs", list, "")
-    assert isinstance(designs, list)
+    doc = read_summary(summary)
+    file, digest, designs = doc.file, doc.inputs_digest, doc.designs
     if not 1 <= rank <= len(designs):
         raise TrimInputError(f"{summary}: --design {rank}: no such design (the study kept "
                              f"{len(designs)}: 1 to {len(designs)})" if designs else f"{summary}: the study found no design")
     entry = designs[rank - 1]
-    if not isinstance(entry, dict):
-        raise TrimInputError(f"{summary}: designs[{rank - 1}]: not an object")
-    choice = need(entry, "choice", dict, f"designs[{rank - 1}].")
-    u = need(entry, "u", list, f"designs[{rank - 1}].")
-    assert isinstance(choice, dict) and isinstance(u, list)
-    medium = need(choice, "medium", list, f"designs[{rank - 1}].choice.")
-    short = need(choice, "short", list, f"designs[{rank - 1}].choice.")
-    assert isinstance(medium, list) and isinstance(short, list)
-    ok = (all(isinstance(v, int) and not isinstance(v, bool) for v in medium) and all(isinstance(v, bool) for v in short)
-          and all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for v in u))
-    if not ok:
-        raise TrimInputError(f"{summary}: designs[{rank - 1}]: choice or u holds values of the wrong kind")
-    files = doc.get("files") if isinstance(doc.get("files"), dict) else {}
+    medium, short, u = list(entry.choice.medium), list(entry.choice.short), list(entry.u)
+    if not all(math.isfinite(v) for v in u):
+        raise TrimInputError(f"{summary}: designs[{rank - 1}].u: holds a value that is not finite")
+    files = doc.files
 
     path = Path(file)
     if not path.is_absolute() and not path.is_file():

@@ -17,6 +17,7 @@ import math
 from dataclasses import dataclass
 from typing import Literal
 
+from optmatch.domain.network import LINE_STAGES
 from optmatch.engine.cascade import Stage
 
 Topology = Literal["shunt_stub", "series_stub", "double_stub", "quarter_wave"]
@@ -368,12 +369,6 @@ def all_solutions(
     )
 
 
-_STAGES: dict[str, Stage] = {
-    "line": Stage("line"),
-    "shunt_stub": Stage("stub", "shunt"),
-    "series_stub": Stage("stub", "series"),
-}
-
 SPEED_OF_LIGHT_M_PER_S = 299_792_458.0
 
 
@@ -386,7 +381,7 @@ def to_engine(solution: Solution, f0_hz: float) -> tuple[list[Stage], list[dict[
         raise ValueError(f"design frequency must be a positive number of hertz, got {f0_hz!r}")
     stages, params = [], []
     for e in solution.elements:
-        stages.append(_STAGES[e.kind])
+        stages.append(LINE_STAGES[e.kind])
         p: dict[str, float | bool] = {"z0": e.z0_ohm, "delay": e.length_wl / f0_hz}
         if e.kind != "line":
             p["short"] = e.end == "short"

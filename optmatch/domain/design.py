@@ -9,7 +9,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from optmatch.domain.mask import worst_point
+from optmatch.domain.mask import margin_db, worst_point
 from optmatch.domain.microstrip import velocity_factor
 from optmatch.domain.network import Choice
 from optmatch.domain.problem import Problem
@@ -84,7 +84,9 @@ def describe(problem: Problem, design: Design) -> list[ElementReport]:
 
 @dataclass(frozen=True)
 class Performance:
-    """Band figures of one design on the problem's grid."""
+    """Band figures of one design (or of the bare load) on the problem's grid: Γ, return loss (dB),
+    delivered share of the available power, network loss (dB), the worst point against the mask
+    and the margin (dB)."""
 
     freq: np.ndarray
     gamma: np.ndarray
@@ -93,13 +95,28 @@ class Performance:
     network_loss_db: np.ndarray
     worst_index: int
     worst_rl_db: float
+    margin_db: float
+
+
+def _figures(problem: Problem, gamma: np.ndarray, gamma_sq: np.ndarray, delivered: np.ndarray,
+             loss_db: np.ndarray) -> Performance:
+    idx, rl = worst_point(gamma_sq, problem.grid)
+    with np.errstate(divide="ignore"):
+        rl_db = -10.0 * np.log10(gamma_sq)
+    margin = float(margin_db(gamma_sq[None, :], delivered[None, :], problem.grid)[0])
+    return Performance(freq=problem.grid.freq, gamma=gamma, return_loss_db=rl_db, delivered=delivered,
+                       network_loss_db=loss_db, worst_index=idx, worst_rl_db=rl, margin_db=margin)
 
 
 def performance(problem: Problem, design: Design) -> Performance:
     """Evaluate one design over the problem's grid."""
     r = problem.response(design.vector(), design.choice)
-    idx, rl = worst_point(r.gamma_sq[0], problem.grid)
-    return Performance(
-        freq=problem.grid.freq, gamma=r.gamma[0], return_loss_db=r.return_loss_db[0],
-        delivered=r.delivered[0], network_loss_db=r.network_loss_db[0], worst_index=idx, worst_rl_db=rl,
-    )
+    return _figures(problem, r.gamma[0], r.gamma_sq[0], r.delivered[0], r.network_loss_db[0])
+
+
+def bare_load(problem: Problem) -> Performance:
+    """The load alone, with no network, against the system impedance (no network loss)."""
+    zl = np.asarray(problem.zload, dtype=complex)
+    gamma = (zl - problem.z_sys) / (zl + problem.z_sys)
+    gamma_sq = np.abs(gamma) ** 2
+    return _figures(problem, gamma, gamma_sq, 1.0 - gamma_sq, np.zeros(gamma.shape))

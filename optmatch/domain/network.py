@@ -22,6 +22,13 @@ ElementKind = Literal["line", "shunt_stub", "series_stub", "lumped"]
 End = Literal["open", "short", "either"]
 LengthBasis = Literal["delay", "physical"]
 
+# The one map from a line-like element kind to its engine stage (closed-form solutions use it too).
+LINE_STAGES: dict[str, Stage] = {
+    "line": Stage("line"),
+    "shunt_stub": Stage("stub", "shunt"),
+    "series_stub": Stage("stub", "series"),
+}
+
 
 @dataclass(frozen=True)
 class Bound:
@@ -80,6 +87,8 @@ class ElementSpec:
     Shelf: ``piece_m`` gives, per medium option, the length (m) of a stock piece of that cable, or
     None where the option is cut to length (then the ``length`` bound applies); empty = all cut.
     ``cut_step_m``: cut lengths are whole multiples of this step (m; basis ``physical``).
+    ``max_voltage_v``: the lowest peak RF voltage rating among the allowances (connectors, adapters,
+    tees) that give one at this element, for the power check (V; None = none given).
     Lumped parts: ``connection``, ``part`` and ``value`` bound (Ω, H or F).
     """
 
@@ -96,6 +105,7 @@ class ElementSpec:
     part: Literal["r", "l", "c"] | None = None
     value: Bound | None = None
     label: str = ""
+    max_voltage_v: float | None = None  # lowest peak-voltage rating of the connectors at this element (V)
 
     @property
     def is_line_like(self) -> bool:
@@ -106,12 +116,9 @@ class ElementSpec:
         return self.piece_m[option] if option < len(self.piece_m) else None
 
     def stage(self) -> Stage:
-        if self.kind == "line":
-            return Stage("line")
-        if self.kind == "shunt_stub":
-            return Stage("stub", "shunt")
-        if self.kind == "series_stub":
-            return Stage("stub", "series")
+        """The engine stage of this element (:data:`LINE_STAGES`, or a lumped part)."""
+        if self.kind in LINE_STAGES:
+            return LINE_STAGES[self.kind]
         return Stage("lumped", self.connection, self.part)
 
 

@@ -1,12 +1,12 @@
 """Voltage, current and heat along every line and stub of one design when driven at a given power.
 
-Pure numpy.  The network is walked from the load outwards as in the engine (a homogeneous state
-``(V, I)`` per frequency, scaled by a running factor ``k``), recording at each section the state at
-its ends; the standing wave along a section then follows from the line equations
-``V(z) = V₀ cosh γz + Z0 I₀ sinh γz``, ``I(z) = I₀ cosh γz + (V₀/Z0) sinh γz`` sampled along it.
-Stubs are walked from their far end (open: I = 0; short: V = 0), so the voltage at an open end and
-the current at a shorted end come out directly.  Finally everything is scaled to the source: EMF of
-a source with internal impedance ``z_sys`` whose available power is ``power_w``.
+Pure numpy, and the engine's own physics: the network is walked from the load outwards with the
+engine's line update, branch impedance pair and series/shunt update (a homogeneous state ``(V, I)``
+per frequency, scaled by a running factor ``k``), one design at a time.  Each section is also cut
+into ``SAMPLES`` sub-sections, one engine row each, which gives the standing wave along it.  Stubs
+are walked from their far end (open: I = 0; short: V = 0), so the voltage at an open end and the
+current at a shorted end come out directly.  Finally everything is scaled to the source: EMF of a
+source with internal impedance ``z_sys`` whose available power is ``power_w``.
 
 Units: Hz, Ω, s, V and A as peak phasor magnitudes (peak RF values), W (average).
 """
@@ -14,11 +14,12 @@ Units: Hz, Ω, s, V and A as peak phasor magnitudes (peak RF values), W (average
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
-from optmatch.engine import Stage
+from optmatch.domain.cables import Cable
+from optmatch.engine import Grid, Stage, add_branch, branch_pair, line_terms, through_line
 
 SAMPLES = 513  # points along each section (a 1-λ section is sampled every 0.7°)
 
@@ -51,17 +52,16 @@ class DriveResult:
     delivered_w: np.ndarray
 
 
-def _gamma_l(p: Mapping, freq: np.ndarray) -> np.ndarray:
-    """γℓ of a whole section on the grid, (F,)."""
-    alpha = float(p.get("loss_c", 0.0)) * np.sqrt(freq) + float(p.get("loss_d", 0.0)) * freq
-    return alpha + 1j * 2.0 * np.pi * freq * float(p["delay"])
+def _along(p: Mapping, s: np.ndarray) -> dict:
+    """Engine parameters of the first ``s`` fractions (S,) of a section: S sub-sections, one per row."""
+    scale = {key: float(np.asarray(p[key]).reshape(-1)[0]) * s for key in ("delay", "loss_c", "loss_d") if key in p}
+    return {"z0": float(np.asarray(p["z0"]).reshape(-1)[0]), **scale}
 
 
-def _profile(v0: np.ndarray, i0: np.ndarray, z0: float, gl: np.ndarray, s: np.ndarray):
-    """State along a section from the end (v0, i0): arrays (S, F) at fractions ``s`` of its length."""
-    x = s[:, None] * gl[None, :]
-    ch, sh = np.cosh(x), np.sinh(x)
-    return ch * v0 + z0 * sh * i0, ch * i0 + sh * v0 / z0
+def _profile(v0: np.ndarray, i0: np.ndarray, p: Mapping, s: np.ndarray, grid: Grid):
+    """State along a section from its end (v0, i0) (F,): arrays (S, F) at fractions ``s`` of its length,
+    carried by the engine's line update."""
+    return through_line(v0[None, :], i0[None, :], *line_terms(_along(p, s), s.size, grid))
 
 
 def _conductor_share(p: Mapping, freq: np.ndarray) -> np.ndarray:
@@ -73,39 +73,34 @@ def _conductor_share(p: Mapping, freq: np.ndarray) -> np.ndarray:
 
 def drive(stages: Sequence[Stage], params: Sequence[Mapping], freq: np.ndarray, zload: np.ndarray | complex,
           z_sys: float, power_w: float, samples: int = SAMPLES) -> DriveResult:
-    """Stress of every line and stub of ONE design (scalar parameters) driven with ``power_w`` available."""
-    freq = np.asarray(freq, dtype=float)
+    """Stress of every line and stub of ONE design (scalar parameters) driven with ``power_w`` available.
+
+    The walk uses the engine's own line update, branch impedance and series/shunt update, one
+    design at a time (n = 1), so the physics here is the engine's.
+    """
+    grid = Grid(np.asarray(freq, dtype=float))
+    freq = grid.freq
     zl = np.broadcast_to(np.asarray(zload, dtype=complex), freq.shape)
     v, i, k = zl.copy(), np.ones_like(zl), np.ones_like(zl)
     s = np.linspace(0.0, 1.0, samples)
     recorded: list[tuple[int, np.ndarray, np.ndarray, np.ndarray, float, Mapping, bool]] = []
     for idx, (stage, p) in enumerate(zip(stages, params, strict=True)):
         if stage.kind == "line":
-            z0 = float(p["z0"])
-            pv, pi = _profile(v, i, z0, _gamma_l(p, freq), s)
-            recorded.append((idx, pv, pi, k, z0, p, False))
+            pv, pi = _profile(v, i, p, s, grid)
+            recorded.append((idx, pv, pi, k, float(np.asarray(p["z0"]).reshape(-1)[0]), p, False))
             v, i = pv[-1], pi[-1]
             continue
+        bp, bq = (np.broadcast_to(x, (1, freq.size))[0] for x in branch_pair(stage, p, 1, grid))
         if stage.kind == "stub":
-            z0 = float(p["z0"])
             short = bool(np.asarray(p.get("short", False)).reshape(-1)[0])
-            far_v = np.zeros_like(v) if short else np.ones_like(v)
-            far_i = np.ones_like(v) if short else np.zeros_like(v)
-            pv, pi = _profile(far_v, far_i, z0, _gamma_l(p, freq), s)
-            bp, bq = pv[-1], pi[-1]  # stub impedance bp / bq at the junction
-            mult = v if stage.connection == "shunt" else i
-        else:
-            omega = 2.0 * np.pi * freq
-            value = float(p["value"])
-            one = np.ones_like(v)
-            bp, bq = {"r": (value * one, one), "l": (1j * omega * value, one), "c": (one, 1j * omega * value)}[stage.part]
-            mult = None
-        if stage.connection == "shunt":
-            v, i, k = v * bp, i * bp + v * bq, k * bp
-        else:
-            v, i, k = v * bq + i * bp, i * bq, k * bq
+            # the stub walked from its far end: open (V, I) = (1, 0), short (0, 1); at the junction
+            # this state is the branch pair (P, Q) itself
+            far_v, far_i = (np.zeros_like(v), np.ones_like(v)) if short else (np.ones_like(v), np.zeros_like(v))
+            pv, pi = _profile(far_v, far_i, p, s, grid)
+            mult = v if stage.connection == "shunt" else i  # the junction state scales the stub's
+        v, i, k = add_branch(v, i, k, stage.connection, bp, bq)
         if stage.kind == "stub":
-            recorded.append((idx, pv * mult, pi * mult, k, z0, p, not short))
+            recorded.append((idx, pv * mult, pi * mult, k, float(np.asarray(p["z0"]).reshape(-1)[0]), p, not short))
     v_in, i_in = v / k, i / k  # physical, for 1 A into the load
     emf = np.sqrt(8.0 * z_sys * power_w)
     c = emf / (v_in + z_sys * i_in)  # scale of every physical quantity to the real drive
@@ -129,50 +124,66 @@ def drive(stages: Sequence[Stage], params: Sequence[Mapping], freq: np.ndarray, 
 
 @dataclass(frozen=True)
 class RatingCheck:
-    """One section against its cable's ratings, at the worst frequency of each figure."""
+    """One section against its cable's ratings and its connectors' voltage rating, at the worst
+    frequency of each figure.  Cable figures are None without a catalog cable; the connector
+    rating is None where no allowance at the element gives one."""
 
     index: int
-    cable: str
+    cable: str | None
     peak_voltage_v: float
     voltage_freq_hz: float
-    max_voltage_v: float
-    heating_w: float
-    heating_freq_hz: float
-    power_rating_w: float
     peak_current_a: float
     dissipated_w: float
     open_end_v: float | None
+    max_voltage_v: float | None = None
+    heating_w: float | None = None
+    heating_freq_hz: float | None = None
+    power_rating_w: float | None = None
+    connector_max_voltage_v: float | None = None
 
     @property
-    def voltage_ok(self) -> bool:
-        return self.peak_voltage_v <= self.max_voltage_v
+    def voltage_ok(self) -> bool | None:
+        return None if self.max_voltage_v is None else self.peak_voltage_v <= self.max_voltage_v
 
     @property
-    def power_ok(self) -> bool:
-        return self.heating_w <= self.power_rating_w
+    def power_ok(self) -> bool | None:
+        return None if self.heating_w is None or self.power_rating_w is None else self.heating_w <= self.power_rating_w
+
+    @property
+    def connector_ok(self) -> bool | None:
+        if self.connector_max_voltage_v is None:
+            return None
+        return self.peak_voltage_v <= self.connector_max_voltage_v
 
 
-def check_ratings(result: DriveResult, cables: Mapping[int, object]) -> list[RatingCheck]:
-    """Compare every section that has a catalog cable (``cables``: element index → Cable) with its ratings.
+def check_ratings(result: DriveResult, cables: Mapping[int, Cable],
+                  connectors: Mapping[int, float] | None = None) -> list[RatingCheck]:
+    """Compare every section that has a catalog cable (``cables``: element index → Cable) or a connector
+    voltage rating (``connectors``: element index → peak V) with those ratings.
 
     Power: the largest local heating along the section against the cable's power rating derated to
-    that frequency (1 / attenuation); voltage: the peak RF voltage anywhere along it and over the band.
+    that frequency (1 / attenuation); voltage: the peak RF voltage anywhere along the section and over
+    the band, against the cable's rating and against its connectors' (a connector sits at an end of
+    the section, so this is on the safe side).
     """
+    connectors = connectors or {}
     out = []
     for sec in result.sections:
         cable = cables.get(sec.index)
-        if cable is None:
+        connector_v = connectors.get(sec.index)
+        if cable is None and connector_v is None:
             continue
-        rating = np.asarray(cable.power_rating_w(result.freq), dtype=float)  # type: ignore[attr-defined]
         jv = int(np.argmax(sec.voltage_v))
-        jh = int(np.argmax(sec.heating_w / rating))
-        out.append(RatingCheck(
-            index=sec.index, cable=cable.name,  # type: ignore[attr-defined]
-            peak_voltage_v=float(sec.voltage_v[jv]), voltage_freq_hz=float(result.freq[jv]),
-            max_voltage_v=float(cable.max_voltage_v),  # type: ignore[attr-defined]
-            heating_w=float(sec.heating_w[jh]), heating_freq_hz=float(result.freq[jh]),
-            power_rating_w=float(rating[jh]), peak_current_a=float(np.max(sec.current_a)),
-            dissipated_w=float(np.max(sec.dissipated_w)),
-            open_end_v=None if sec.open_end_v is None else float(np.max(sec.open_end_v)),
-        ))
+        check = RatingCheck(index=sec.index, cable=None, peak_voltage_v=float(sec.voltage_v[jv]),
+                            voltage_freq_hz=float(result.freq[jv]), peak_current_a=float(np.max(sec.current_a)),
+                            dissipated_w=float(np.max(sec.dissipated_w)),
+                            open_end_v=None if sec.open_end_v is None else float(np.max(sec.open_end_v)),
+                            connector_max_voltage_v=connector_v)
+        if cable is not None:
+            rating = np.asarray(cable.power_rating_w(result.freq), dtype=float)
+            jh = int(np.argmax(sec.heating_w / rating))
+            check = replace(check, cable=cable.name, max_voltage_v=float(cable.max_voltage_v),
+                            heating_w=float(sec.heating_w[jh]), heating_freq_hz=float(result.freq[jh]),
+                            power_rating_w=float(rating[jh]))
+        out.append(check)
     return out

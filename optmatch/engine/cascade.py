@@ -109,13 +109,6 @@ class Response:
             return -10.0 * np.log10(self.gamma_sq)
 
     @property
-    def vswr(self) -> np.ndarray:
-        """Voltage standing-wave ratio (``inf`` for total reflection)."""
-        mag = np.abs(self.gamma)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return np.where(mag < 1.0, (1.0 + mag) / (1.0 - mag), np.inf)
-
-    @property
     def network_loss_db(self) -> np.ndarray:
         """Power lost inside the network, dB (accepted vs. delivered power; 0 if lossless)."""
         accepted = 1.0 - self.gamma_sq
@@ -133,7 +126,7 @@ def _column(value: np.ndarray | float | bool, n: int, dtype: type = float) -> np
     return arr.reshape(n, 1)
 
 
-class _Grid:
+class Grid:
     """Frequency grid with its uniform runs found once, for fast phasors exp(jωτ).
 
     On a uniform run the phasors are built by repeated doubling from one exponential per
@@ -197,8 +190,9 @@ class _Grid:
         return out
 
 
-def _line_terms(p: Params, n: int, grid: _Grid):
-    """Z0, cosh(γl) and sinh(γl) for a line section, shaped (n, 1) and (n, F)."""
+def line_terms(p: Params, n: int, grid: Grid):
+    """Z0, cosh(γl) and sinh(γl) of a line section (``z0``, ``delay``, optional loss) for ``n``
+    candidates, shaped (n, 1), (n, F) and (n, F)."""
     z0 = _column(p["z0"], n)
     tau = np.broadcast_to(_column(p["delay"], n), (n, 1))
     e = grid.phasor(tau)
@@ -214,10 +208,27 @@ def _line_terms(p: Params, n: int, grid: _Grid):
     return z0, 0.5 * (ep + em), 0.5 * (ep - em)
 
 
-def _branch_pair(stage: Stage, p: Params, n: int, grid: _Grid):
-    """Impedance of a two-terminal branch as a pair (P, Q) with Z = P / Q."""
+def through_line(v: np.ndarray, i: np.ndarray, z0: np.ndarray, ch: np.ndarray, sh: np.ndarray):
+    """The state ``(V, I)`` carried through a line section of :func:`line_terms` (its ABCD matrix)."""
+    return ch * v + (z0 * sh) * i, (sh / z0) * v + ch * i
+
+
+def add_branch(v: np.ndarray, i: np.ndarray, k: np.ndarray, connection: Connection, bp: np.ndarray, bq: np.ndarray):
+    """The state ``(V, I, k)`` after a branch of impedance ``bp / bq`` placed in ``series`` or ``shunt``.
+
+    Multiplied through by the denominator, so open and short circuits stay finite; ``k`` records
+    that factor (state = k × physical).
+    """
+    if connection == "series":  # V' = V + Z I
+        return v * bq + i * bp, i * bq, k * bq
+    return v * bp, i * bp + v * bq, k * bp  # shunt: I' = I + V / Z
+
+
+def branch_pair(stage: Stage, p: Params, n: int, grid: Grid):
+    """Impedance of a two-terminal branch (stub or lumped part) as a pair (P, Q) with Z = P / Q,
+    shaped (n, F) or broadcastable to it."""
     if stage.kind == "stub":
-        z0, ch, sh = _line_terms(p, n, grid)
+        z0, ch, sh = line_terms(p, n, grid)
         short = p.get("short", False)
         if np.ndim(short) == 1 and (np.all(short) or not np.any(short)):
             short = bool(short[0]) if len(short) else False
@@ -249,7 +260,7 @@ def walk(
     Returns ``(V, I, k, p_load)`` each shaped (n, F): the input state, the accumulated scale
     factor (state = k × physical) and Re(V_L I_L*) at the load for the load state (Z_L, 1).
     """
-    grid = freq if isinstance(freq, _Grid) else _Grid(freq)
+    grid = freq if isinstance(freq, Grid) else Grid(freq)
     freq = grid.freq
     zl = np.broadcast_to(np.asarray(zload, dtype=complex), freq.shape)
     v = np.broadcast_to(zl, (n, freq.size)).astype(complex)
@@ -258,16 +269,9 @@ def walk(
     branches = 0
     for stage, p in zip(stages, params, strict=True):
         if stage.kind == "line":
-            z0, ch, sh = _line_terms(p, n, grid)
-            v, i = ch * v + (z0 * sh) * i, (sh / z0) * v + ch * i
+            v, i = through_line(v, i, *line_terms(p, n, grid))
             continue
-        bp, bq = _branch_pair(stage, p, n, grid)
-        if stage.connection == "series":  # V' = V + Z I
-            v, i = v * bq + i * bp, i * bq
-            k = k * bq
-        else:  # I' = I + V / Z
-            v, i = v * bp, i * bp + v * bq
-            k = k * bp
+        v, i, k = add_branch(v, i, k, stage.connection, *branch_pair(stage, p, n, grid))
         # Keep magnitudes near one so long chains neither overflow nor underflow.  Usually one
         # real factor per candidate, taken at the first frequency (O(n)); every few branches a
         # factor per point, since a branch's spread over the band (e.g. jωL) multiplies up.
@@ -340,7 +344,7 @@ def evaluate_reduced(
     if z_sys <= 0:
         raise ValueError("system impedance must be positive")
     n = batch_size(params)
-    grid = _Grid(freq)
+    grid = Grid(freq)
     outs = []
     for start in range(0, n, chunk):
         sl = slice(start, min(start + chunk, n))

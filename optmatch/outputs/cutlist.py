@@ -1,6 +1,6 @@
-"""The cut list as a technician reads it (markdown) and as a spreadsheet takes it (CSV).
+"""The cut list as a technician reads it (markdown) and as a spreadsheet takes it (CSV), from the
+summary document's build sheet (and the best design's power check).
 
-Input: the ``cut_list`` document of summary.json (see :func:`optmatch.running.build.build_view`).
 Lengths in mm, delays in ns, electrical lengths in degrees at the reference frequency.
 """
 
@@ -8,81 +8,82 @@ from __future__ import annotations
 
 import csv
 import io
-from collections.abc import Mapping
+from dataclasses import asdict
 
-CSV_COLUMNS = ("element", "part", "cable", "source", "cut_mm", "cut_long_mm", "width_mm", "electrical_deg",
-               "cable_delay_ns", "allowance_ns", "z0_ohm", "vf", "advice")
+from optmatch.outputs.document import BuildSheet, SummaryDoc
+from optmatch.outputs.markdown import md, md_block, table
+from optmatch.outputs.tables import BUILD_HEAD, build_cells, mhz, num
+
+CSV_COLUMNS = ("element", "part", "cable", "source", "z0_ohm", "vf", "end", "cut_mm", "cut_long_mm", "width_mm",
+               "electrical_deg", "allowance_deg", "cable_delay_ns", "allowance_ns", "advice")
 
 CAUTION = ("Open stub ends and mismatched lines carry high RF voltage at transmit power: insulate open ends, "
            "switch off before touching, and defer to the cable and connector makers' ratings.")
 
 
-def _n(value: object, fmt: str) -> str:
-    return "–" if value is None else format(value, fmt)
-
-
-def cut_list_markdown(doc: Mapping, study: str = "", f_ref_hz: float | None = None) -> str:
-    """The cut list page: pieces in build order (load outwards), stock used, cable totals, power check."""
-    ref = f" at {f_ref_hz / 1e6:.3f} MHz" if f_ref_hz else ""
-    lines = [f"# Cut list{': ' + study if study else ''}", "",
-             "Pieces from the load outwards. *Cut* is the cable itself, connector to connector, after the "
-             f"allowances of connectors, adapters and tees; *electrical* includes those allowances{ref}.", ""]
-    head = ["#", "part", "cable", "from", "cut (mm)", "cut long to (mm)", "electrical (°)", "cable delay (ns)",
-            "allowance (ns)", "advice"]
-    widths = any(p.get("width_mm") is not None for p in doc["pieces"])
-    if widths:
-        head.insert(5, "strip width (mm)")
-    lines += ["| " + " | ".join(head) + " |", "|" + "|".join("---:" if h.endswith(")") else ":---" for h in head) + "|"]
-    for p in doc["pieces"]:
-        cells = [str(p["element"]), p["part"], p["cable"], p["source"], f"{p['cut_mm']:.1f}",
-                 _n(p.get("cut_long_mm"), ".1f"), f"{p['electrical_deg']:.1f}", f"{p['cable_delay_ns']:.3f}",
-                 f"{p['allowance_ns']:.3f}", p.get("advice") or ""]
-        if widths:
-            cells.insert(5, _n(p.get("width_mm"), ".3f"))
-        lines.append("| " + " | ".join(str(c).replace("|", "\\|") for c in cells) + " |")
+def cut_list_markdown(doc: SummaryDoc) -> str:
+    """The cut list page: pieces in build order (load outwards), assembly, stock, cable totals, power check."""
+    sheet = doc.build
+    assert sheet is not None
+    lines = [f"# Cut list: {md(doc.study)}", "",
+             f"Pieces of the design ranked {sheet.design_rank}, from the load outwards; electrical lengths at "
+             f"{mhz(doc.reference_hz)}. {md(sheet.allowances)}", ""]
+    widths = any(p.width_mm is not None for p in sheet.pieces)
+    head = [*BUILD_HEAD, "from", "cut long to (mm)", "cable delay (ns)", "allowance (ns)",
+            *(["strip width (mm)"] if widths else []), "advice"]
+    rows = []
+    for cells, p in zip(build_cells(sheet), sheet.pieces, strict=True):
+        rows.append([*(md(c) for c in cells), md(p.source), num(p.cut_long_mm, ".1f"), f"{p.cable_delay_ns:.3f}",
+                     f"{p.allowance_ns:.3f}", *([num(p.width_mm, ".3f")] if widths else []), md(p.advice)])
+    lines += table(head, rows, "l" * 8 + "lrrr" + ("r" if widths else "") + "l")
+    lines += ["", f"Trim rule: {sheet.trim_rule}.", "", "## Assembly, from the load to the source", ""]
+    lines += [f"{k}. {md_block(step)}" for k, step in enumerate(sheet.assembly, start=1)]
     lines.append("")
-    lines.append(f"Trim rule: {doc.get('trim_rule', '')}.")
+    if sheet.stock_used:
+        lines += ["## Stock pieces used", "", *table(
+            ["cable", "length (mm)", "used", "on the shelf"],
+            [[md(s.cable), f"{s.length_mm:.1f}", str(s.used), str(s.on_shelf)] for s in sheet.stock_used], "lrrr"), ""]
+    if sheet.cable_totals:
+        lines += ["## Cable from reels", "", *table(
+            ["cable", "pieces", "total to draw (mm)"],
+            [[md(t.cable), str(t.pieces), f"{t.total_mm:.1f}"] for t in sheet.cable_totals], "lrr"), ""]
+    b = sheet.band
+    lines += ["## Across the band", "",
+              f"- Network loss: {b.network_loss_db_min:.2f} to {b.network_loss_db_max:.2f} dB",
+              f"- Share of the available power reaching the load: {b.delivered_share_min:.1%} to "
+              f"{b.delivered_share_max:.1%}"]
+    if b.delivered_w_min is not None and b.delivered_w_max is not None:
+        lines.append(f"- Delivered power: {b.delivered_w_min:.1f} to {b.delivered_w_max:.1f} W")
     lines.append("")
-    if doc.get("stock_used"):
-        lines += ["## Stock pieces used", "", "| cable | length (mm) | used | on the shelf |", "|:---|---:|---:|---:|"]
-        lines += [f"| {s['cable']} | {s['length_mm']:.1f} | {s['used']} | {s['on_shelf']} |" for s in doc["stock_used"]]
-        lines.append("")
-    if doc.get("cable_totals"):
-        lines += ["## Cable from reels", "", "| cable | pieces | total to draw (mm) |", "|:---|---:|---:|"]
-        lines += [f"| {t['cable']} | {t['pieces']} | {t['total_mm']:.1f} |" for t in doc["cable_totals"]]
-        lines.append("")
-    band = doc.get("band") or {}
-    if band:
-        lines += ["## Across the band", "",
-                  f"- Network loss: {band['network_loss_db_min']:.2f} to {band['network_loss_db_max']:.2f} dB",
-                  f"- Share of the available power reaching the load: {band['delivered_share_min']:.1%} to "
-                  f"{band['delivered_share_max']:.1%}"]
-        if "delivered_w_min" in band:
-            lines.append(f"- Delivered power: {band['delivered_w_min']:.1f} to {band['delivered_w_max']:.1f} W")
-        lines.append("")
-    power = doc.get("power")
-    if power:
-        lines += [f"## Power check at {power['drive_w']:g} W available", "",
-                  "| # | part | cable | peak V | rating V | peak A | heating (W, matched-line equivalent) | "
-                  "rating (W) | dissipated (W) | verdict |", "|---:|:---|:---|---:|---:|---:|---:|---:|---:|:---|"]
-        for s in power["sections"]:
-            ok = [s["voltage_ok"], s["power_ok"]]
-            verdict = "no rating" if None in ok else ("ok" if all(ok) else "**OVER RATING**")
-            lines.append(f"| {s['element']} | {s['part']} | {s['cable'] or '–'} | {s['peak_voltage_v']:.0f} | "
-                         f"{_n(s['max_voltage_v'], '.0f')} | {s['peak_current_a']:.2f} | {_n(s['heating_w'], '.1f')} | "
-                         f"{_n(s['power_rating_w'], '.0f')} | {s['dissipated_w']:.2f} | {verdict} |")
-        lines += ["", f"Note: {power['note']}. The heating column is the local heating at the hottest point "
+    power = doc.designs[sheet.design_rank - 1].power if doc.designs else None
+    if power is not None:
+        lines += [f"## Power check at {power.drive_w:g} W available", ""]
+        rows = []
+        for s in power.sections:
+            oks = [ok for ok in (s.voltage_ok, s.power_ok, s.connector_ok) if ok is not None]
+            verdict = "no rating" if not oks else ("ok" if all(oks) else "**OVER RATING**")
+            rows.append([str(s.element), md(s.part), md(s.cable or "–"), f"{s.peak_voltage_v:.0f}",
+                         num(s.max_voltage_v, ".0f"), num(s.connector_max_voltage_v, ".0f"), f"{s.peak_current_a:.2f}",
+                         num(s.heating_w, ".1f"), num(s.power_rating_w, ".0f"), f"{s.dissipated_w:.2f}", verdict])
+        lines += table(["#", "part", "cable", "peak V", "cable rating V", "connector rating V", "peak A",
+                        "heating (W, matched-line equivalent)", "rating (W)", "dissipated (W)", "verdict"],
+                       rows, "lllrrrrrrrl")
+        lines += ["", f"Note: {power.note}. The heating column is the local heating at the hottest point "
                   "(current and voltage maxima of the standing wave) stated as the power of a matched line that "
-                  "heats as much; the cable's rating is for a matched line.", ""]
+                  "heats as much; the cable's rating is for a matched line, derated to the frequency.", ""]
+        lines += [f"- **Over rating:** {md(line)}" for line in power.over_rating]
+        if power.over_rating:
+            lines.append("")
     lines += ["## Caution", "", CAUTION, ""]
     return "\n".join(lines)
 
 
-def cut_list_csv(doc: Mapping) -> str:
+def cut_list_csv(sheet: BuildSheet) -> str:
     """One CSV row per piece, columns :data:`CSV_COLUMNS`."""
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(CSV_COLUMNS)
-    for p in doc["pieces"]:
-        w.writerow(["" if p.get(c) is None else p.get(c) for c in CSV_COLUMNS])
+    for p in sheet.pieces:
+        row = asdict(p)
+        w.writerow(["" if row.get(c) is None else row.get(c) for c in CSV_COLUMNS])
     return buf.getvalue()

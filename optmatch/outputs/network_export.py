@@ -13,49 +13,35 @@ import numpy as np
 
 from optmatch.domain.design import Design
 from optmatch.domain.problem import Problem
+from optmatch.engine import Grid, Stage, add_branch, branch_pair, line_terms, through_line
 from optmatch.io.touchstone import write_touchstone
 
 NETWORK_FILE = "best_network.s2p"
 INPUT_FILE = "matched_input.s1p"
 
 
-def _scalar(value: object) -> float:
-    """One design's value of an engine parameter (scalar or shape (1,))."""
-    return float(np.ravel(np.asarray(value, dtype=float))[0])
-
-
-def _element_matrix(stage, p: dict, freq: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _element_matrix(stage: Stage, p: dict, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
     """Homogeneous ABCD matrix ``k·T`` of one element (F, 2, 2) and its scale ``k`` (F,).
 
-    Branches are kept as a pair Z = P / Q so that open and short circuits stay finite.
+    The engine's own update (line, or branch pair P / Q in series or shunt) applied to the two unit
+    states (V, I) = (1, 0) and (0, 1) gives the matrix's columns, so open and short circuits stay
+    finite and the physics is the engine's.
     """
-    omega = 2.0 * np.pi * freq
-    n = freq.size
-    m = np.zeros((n, 2, 2), dtype=complex)
-    if stage.kind in ("line", "stub"):
-        z0 = _scalar(p["z0"])
-        alpha = _scalar(p.get("loss_c", 0.0)) * np.sqrt(freq) + _scalar(p.get("loss_d", 0.0)) * freq  # Np
-        gl = alpha + 1j * omega * _scalar(p["delay"])
-        ch, sh = np.cosh(gl), np.sinh(gl)
-        if stage.kind == "line":
-            m[:, 0, 0], m[:, 0, 1], m[:, 1, 0], m[:, 1, 1] = ch, z0 * sh, sh / z0, ch
-            return m, np.ones(n, dtype=complex)
-        short = bool(np.ravel(np.asarray(p.get("short", False)))[0])
-        bp, bq = (z0 * sh, ch) if short else (ch, sh / z0)
+    n = grid.freq.size
+    one, zero = np.ones(n, dtype=complex), np.zeros(n, dtype=complex)
+    m = np.empty((n, 2, 2), dtype=complex)
+    if stage.kind == "line":
+        terms = [x[0] for x in np.broadcast_arrays(*line_terms(p, 1, grid))]
+        cols = [through_line(one, zero, *terms), through_line(zero, one, *terms)]
+        k = one
     else:
-        value = _scalar(p["value"])
-        one = np.ones(n, dtype=complex)
-        if stage.part == "r":
-            bp, bq = value * one, one
-        elif stage.part == "l":
-            bp, bq = 1j * omega * value, one
-        else:
-            bp, bq = one, 1j * omega * value
-    if stage.connection == "series":  # [[1, Z], [0, 1]] · Q
-        m[:, 0, 0], m[:, 0, 1], m[:, 1, 1] = bq, bp, bq
-        return m, bq
-    m[:, 0, 0], m[:, 1, 0], m[:, 1, 1] = bp, bq, bp  # [[1, 0], [1/Z, 1]] · P
-    return m, bp
+        bp, bq = (np.broadcast_to(x, (1, n))[0] for x in branch_pair(stage, p, 1, grid))
+        (v1, i1, k), (v2, i2, _) = (add_branch(v, i, one, stage.connection, bp, bq)
+                                    for v, i in ((one, zero), (zero, one)))
+        cols = [(v1, i1), (v2, i2)]
+    for c, (v, i) in enumerate(cols):
+        m[:, 0, c], m[:, 1, c] = v, i
+    return m, k
 
 
 def network_sparams(problem: Problem, design: Design) -> np.ndarray:
@@ -66,13 +52,14 @@ def network_sparams(problem: Problem, design: Design) -> np.ndarray:
     """
     net = problem.network
     params = net.engine_params(design.vector(), design.choice)
-    freq = problem.grid.freq
+    grid = Grid(problem.grid.freq)
+    freq = grid.freq
     z = problem.z_sys
     total = np.broadcast_to(np.eye(2, dtype=complex), (freq.size, 2, 2)).copy()
     k = np.ones(freq.size, dtype=complex)
     # elements are listed from the load outwards; the input-side matrix multiplies on the left
     for stage, p in zip(reversed(net.stages), reversed(params), strict=True):
-        m, km = _element_matrix(stage, p, freq)
+        m, km = _element_matrix(stage, p, grid)
         total = total @ m
         k = k * km
         scale = np.max(np.abs(total), axis=(1, 2))
@@ -94,21 +81,27 @@ def matched_input(problem: Problem, design: Design) -> np.ndarray:
     return problem.response(design.vector(), design.choice).gamma[0]
 
 
-def export_touchstone(problem: Problem, design: Design, folder: str | os.PathLike, rank: int = 1) -> tuple[Path, Path]:
+INVENTED_NOTE = "INVENTED data: the study says its load data is invented; this is not about a measured device"
+
+
+def export_touchstone(problem: Problem, design: Design, folder: str | os.PathLike, rank: int = 1,
+                      invented: bool = False) -> tuple[Path, Path]:
     """Write ``best_network.s2p`` (the network alone) and ``matched_input.s1p`` into ``folder``.
 
-    Returns the two paths.  Both files are written atomically.
+    Both headers name the study, and say that the data is invented when ``invented``.  Returns the
+    two paths.  Both files are written atomically.
     """
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
     z = problem.z_sys
     common = [
         f"optmatch study: {problem.name}",
+        *([INVENTED_NOTE] if invented else []),
         f"design rank {rank}: margin {design.margin_db:+.2f} dB against the mask",
         f"reference impedance {z:g} ohm",
     ]
     network_lines = [
-        *common[:2],
+        *common[:-1],
         "matching network alone, 2-port",
         "port 1 faces the source (input), port 2 faces the load",
         f"both ports referenced to {z:g} ohm",

@@ -8,11 +8,13 @@ from __future__ import annotations
 
 import os
 from collections.abc import Sequence
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.patches import Rectangle
 
 from optmatch.domain.design import Performance
 from optmatch.domain.mask import Grid, Segment
@@ -23,6 +25,7 @@ SMITH_FILE = "smith.png"
 PARETO_FILE = "pareto.png"
 
 FIGSIZE_IN = (8.0, 5.0)
+SMITH_FIGSIZE_IN = (11.0, 6.0)
 DPI = 120
 # our own palette: designs in ranked order, then the mask and the chart grid
 DESIGN_COLOURS = ("#1b6f8a", "#d9822b", "#6c4f9e", "#3f8f4f", "#a63d57")
@@ -30,7 +33,30 @@ FORBIDDEN = "#e8b4b0"
 REQUIREMENT = "#9b2d20"
 GRID_INK = "#b9bec4"
 TEXT_INK = "#2b2f33"
+LOAD_INK = "#7d848c"  # the bare load, dashed
 RL_CAP_DB = 60.0  # a perfect match is infinite return loss; draw it at the top of the axes
+
+
+@dataclass(frozen=True)
+class Caption:
+    """What every figure says about where it comes from: the study's name, and whether the study says
+    its data is invented."""
+
+    study: str
+    invented: bool = False
+
+    def text(self) -> str:
+        note = " · INVENTED data (the study says so): not a measurement" if self.invented else ""
+        return f"optmatch study: {self.study}{note}"
+
+
+def _caption(fig: Figure, caption: Caption | None) -> tuple[float, float, float, float]:
+    """Write the caption along the bottom edge; returns the rectangle left for the axes."""
+    if caption is None:
+        return (0.0, 0.0, 1.0, 1.0)
+    fig.text(0.01, 0.012, caption.text(), fontsize=8, color="#5b6168" if not caption.invented else REQUIREMENT,
+             ha="left", va="bottom", parse_math=False)
+    return (0.0, 0.04, 1.0, 1.0)
 
 
 def _figure(size: tuple[float, float] = FIGSIZE_IN) -> Figure:
@@ -108,13 +134,14 @@ def _broken(x: np.ndarray, y: np.ndarray, breaks: np.ndarray) -> tuple[np.ndarra
     return np.insert(x, breaks + 1, np.nan), np.insert(y, breaks + 1, np.nan)
 
 
-def _finish_xy(fig, ax, path: str | os.PathLike, xlabel: str, ylabel: str, title: str, legend_loc: str) -> Path:
-    """Labels, title and legend in the house style of the x–y plots, then an atomic save."""
+def _finish_xy(fig, ax, path: str | os.PathLike, xlabel: str, ylabel: str, title: str, legend_loc: str,
+               caption: Caption | None = None) -> Path:
+    """Labels, title, legend and caption in the house style of the x–y plots, then an atomic save."""
     ax.set_xlabel(xlabel, color=TEXT_INK)
     ax.set_ylabel(ylabel, color=TEXT_INK)
     ax.set_title(title, color=TEXT_INK, fontsize=11, loc="left")
     ax.legend(loc=legend_loc, fontsize=8, frameon=True, framealpha=0.9, edgecolor="#d0d4d8")
-    fig.tight_layout()
+    fig.tight_layout(rect=_caption(fig, caption))
     return save_figure_atomic(fig, path)
 
 
@@ -123,12 +150,14 @@ def plot_return_loss(
     grid: Grid,
     path: str | os.PathLike,
     segments: Sequence[Segment] | None = None,
+    load: Performance | None = None,
+    caption: Caption | None = None,
 ) -> Path:
     """Return loss (dB, positive, higher is better) against frequency (MHz) for ranked designs.
 
     ``perfs`` is best first; the mask is drawn as shaded forbidden areas under each segment's
     requirement, taken from ``segments`` when given, otherwise recovered from ``grid``.
-    The worst point of the best design is marked.
+    ``load``: the bare load (no network), drawn dashed.  The worst point of the best design is marked.
     """
     fig = _figure()
     ax = fig.add_subplot(1, 1, 1)
@@ -151,6 +180,9 @@ def plot_return_loss(
         ax.plot(x, [req, req], color=REQUIREMENT, linewidth=1.6,
                 label="required return loss" if k == 0 else None)
     breaks = _gap_breaks(grid.freq)
+    if load is not None:
+        x, y = _broken(load.freq / 1e6, np.minimum(load.return_loss_db, y_top), breaks)
+        ax.plot(x, y, color=LOAD_INK, linewidth=1.4, linestyle=(0, (5, 3)), label="load alone (no network)", zorder=2)
     for k, (label, perf) in enumerate(perfs):
         rl = np.minimum(perf.return_loss_db, y_top)
         x, y = _broken(perf.freq / 1e6, rl, breaks)
@@ -179,10 +211,10 @@ def plot_return_loss(
     pad = 0.03 * (float(grid.freq.max() - grid.freq.min()) / 1e6 or 1.0)
     ax.set_xlim(grid.freq.min() / 1e6 - pad, grid.freq.max() / 1e6 + pad)
     return _finish_xy(fig, ax, path, "frequency (MHz)", "return loss (dB, higher is better)",
-                      "Return loss of the ranked designs against the mask", "upper right")
+                      "Return loss of the ranked designs against the mask", "upper right", caption)
 
 
-def _smith_grid(ax) -> None:
+def _smith_grid(ax, labels: bool = True) -> None:
     """Constant-resistance circles and constant-reactance arcs, clipped to the unit circle."""
     t = np.linspace(0.0, 2.0 * np.pi, 721)
     ax.plot(np.cos(t), np.sin(t), color="#7a8087", linewidth=1.2)
@@ -190,16 +222,78 @@ def _smith_grid(ax) -> None:
     for r in (0.2, 0.5, 1.0, 2.0, 5.0):
         c, rad = r / (1.0 + r), 1.0 / (1.0 + r)
         ax.plot(c + rad * np.cos(t), rad * np.sin(t), color=GRID_INK, linewidth=0.8)
-        ax.text(c - rad, 0.015, f"{r:g}", fontsize=7, color="#6b7177", ha="right", va="bottom")
+        if labels:
+            ax.text(c - rad, 0.015, f"{r:g}", fontsize=7, color="#6b7177", ha="right", va="bottom")
     r_run = np.concatenate([[0.0], np.logspace(-3, 4, 600)])
     for x in (0.2, 0.5, 1.0, 2.0, 5.0):
         for sign in (1.0, -1.0):
             z = r_run + 1j * sign * x
             g = (z - 1.0) / (z + 1.0)
             ax.plot(g.real, g.imag, color=GRID_INK, linewidth=0.8)
-            edge = (1j * sign * x - 1.0) / (1j * sign * x + 1.0)
-            ax.text(1.07 * edge.real, 1.07 * edge.imag, f"{'+' if sign > 0 else '−'}j{x:g}", fontsize=7,
-                    color="#6b7177", ha="center", va="center")
+            if labels:
+                edge = (1j * sign * x - 1.0) / (1j * sign * x + 1.0)
+                ax.text(1.07 * edge.real, 1.07 * edge.imag, f"{'+' if sign > 0 else '−'}j{x:g}", fontsize=7,
+                        color="#6b7177", ha="center", va="center")
+
+
+def _rl_rings(ax, radius: float) -> None:
+    """Circles of constant return loss inside a zoomed view, labelled in dB."""
+    t = np.linspace(0.0, 2.0 * np.pi, 361)
+    for rl in (6.0, 10.0, 15.0, 20.0, 30.0):
+        rho = 10.0 ** (-rl / 20.0)
+        if rho > 0.97 * radius or rho < 0.06 * radius:
+            continue
+        ax.plot(rho * np.cos(t), rho * np.sin(t), color="#d5d9dd", linewidth=0.7, linestyle=":")
+        ax.text(rho * 0.7071, -rho * 0.7071, f"{rl:g} dB", fontsize=7, color="#6b7177", ha="left", va="top")
+
+
+def _label_edges(ax, perf: Performance, reach: float) -> None:
+    """The band-edge frequencies of one trace, labelled outwards from the centre with a leader line."""
+    g = perf.gamma
+    for idx, text in ((0, f"{perf.freq[0] / 1e6:.3f} MHz"), (-1, f"{perf.freq[-1] / 1e6:.3f} MHz")):
+        point = complex(g[idx])
+        away = point / abs(point) if abs(point) > 0.05 * reach else (1j if idx == 0 else -1j)
+        dx, dy = 40.0 * away.real, 40.0 * away.imag
+        ax.annotate(text, xy=(point.real, point.imag), xytext=(dx, dy), textcoords="offset points",
+                    ha="left" if dx >= 0 else "right", va="center", fontsize=8, color=TEXT_INK,
+                    zorder=9, arrowprops={"arrowstyle": "-", "color": "#5b6168", "linewidth": 0.8},
+                    bbox={"boxstyle": "round,pad=0.2", "facecolor": "white", "edgecolor": "#c3c8cd", "alpha": 0.9})
+
+
+def _traces(ax, perfs: Sequence[tuple[str, Performance]], load: Performance | None, legend: bool) -> None:
+    """The load (dashed) and the designs, drawn worst rank first so that rank 1 lies on top."""
+    if load is not None:
+        g = load.gamma
+        ax.plot(g.real, g.imag, color=LOAD_INK, linewidth=1.4, linestyle=(0, (5, 3)), zorder=3,
+                label="load alone (no network)" if legend else None)
+        ax.plot([g[0].real], [g[0].imag], marker="o", markersize=5, color=LOAD_INK, zorder=3)
+        ax.plot([g[-1].real], [g[-1].imag], marker="s", markersize=5, color=LOAD_INK, zorder=3)
+    for k in reversed(range(len(perfs))):
+        label, perf = perfs[k]
+        colour = DESIGN_COLOURS[k % len(DESIGN_COLOURS)]
+        g = perf.gamma
+        z = 8 if k == 0 else 4 + 0.1 * (len(perfs) - k)
+        ax.plot(g.real, g.imag, color=colour, linewidth=2.4 if k == 0 else 1.3, zorder=z,
+                label=label if legend else None)
+        ax.plot([g[0].real], [g[0].imag], marker="o", markersize=6, color=colour, zorder=z)
+        ax.plot([g[-1].real], [g[-1].imag], marker="s", markersize=6, color=colour, zorder=z)
+
+
+def _limit_circle(ax, min_rl_db: float | None, legend: bool) -> None:
+    if min_rl_db is None:
+        return
+    t = np.linspace(0.0, 2.0 * np.pi, 361)
+    rho = 10.0 ** (-min_rl_db / 20.0)
+    ax.fill(rho * np.cos(t), rho * np.sin(t), color="#dcefe3", alpha=0.6, zorder=1, linewidth=0)
+    ax.plot(rho * np.cos(t), rho * np.sin(t), color=REQUIREMENT, linewidth=1.4, linestyle="--", zorder=2,
+            label=f"|Γ| = {rho:.3f} ({min_rl_db:g} dB return loss)" if legend else None)
+
+
+def zoom_radius(perfs: Sequence[tuple[str, Performance]], min_rl_db: float | None) -> float:
+    """Half-width of the zoomed panel: the mask circle with room around it, or the best trace's reach."""
+    rho = 10.0 ** (-min_rl_db / 20.0) if min_rl_db is not None else 0.1
+    reach = float(np.max(np.abs(perfs[0][1].gamma))) if perfs else rho
+    return float(min(1.05, max(1.6 * rho, 1.15 * reach, 0.05)))
 
 
 def plot_smith(
@@ -207,47 +301,51 @@ def plot_smith(
     path: str | os.PathLike,
     z_sys: float,
     min_rl_db: float | None = None,
+    load: Performance | None = None,
+    caption: Caption | None = None,
 ) -> Path:
-    """Smith chart (normalised to ``z_sys`` Ω) of the input reflection of ranked designs.
+    """Smith chart (normalised to ``z_sys`` Ω) of the input reflection of ranked designs, and a zoom.
 
-    ``min_rl_db``: the mask's strictest requirement (dB); its |Γ| circle is drawn as the limit.
-    The band edges (first and last grid frequency) of every design are marked.
+    Left, the whole chart with the bare ``load`` (dashed); right, the centre enlarged around the
+    mask's circle so that matched traces are legible.  ``min_rl_db``: the mask's strictest
+    requirement (dB), drawn as the |Γ| limit.  Band edges are marked (circle: lowest frequency,
+    square: highest); rank 1 is drawn on top.
     """
-    fig = _figure()
-    ax = fig.add_subplot(1, 1, 1)
-    ax.set_aspect("equal")
-    ax.set_axis_off()
-    _smith_grid(ax)
-    t = np.linspace(0.0, 2.0 * np.pi, 361)
-    if min_rl_db is not None:
-        rho = 10.0 ** (-min_rl_db / 20.0)
-        ax.fill(rho * np.cos(t), rho * np.sin(t), color="#dcefe3", alpha=0.6, zorder=1, linewidth=0)
-        ax.plot(rho * np.cos(t), rho * np.sin(t), color=REQUIREMENT, linewidth=1.4, linestyle="--",
-                label=f"|Γ| = {rho:.3f} ({min_rl_db:g} dB return loss)")
-    for k, (label, perf) in enumerate(perfs):
-        colour = DESIGN_COLOURS[k % len(DESIGN_COLOURS)]
-        g = perf.gamma
-        ax.plot(g.real, g.imag, color=colour, linewidth=2.2 if k == 0 else 1.3, label=label, zorder=3)
-        ax.plot([g[0].real], [g[0].imag], marker="o", markersize=6, color=colour, zorder=4)
-        ax.plot([g[-1].real], [g[-1].imag], marker="s", markersize=6, color=colour, zorder=4)
-        if k == 0:
-            for idx, text in ((0, f"{perf.freq[0] / 1e6:.3f} MHz"), (-1, f"{perf.freq[-1] / 1e6:.3f} MHz")):
-                # label outwards from the chart centre, away from the trace, with a leader line
-                point = complex(g[idx])
-                away = point / abs(point) if abs(point) > 0.05 else (1j if idx == 0 else -1j)
-                dx, dy = 46.0 * away.real, 46.0 * away.imag
-                ax.annotate(text, xy=(point.real, point.imag), xytext=(dx, dy), textcoords="offset points",
-                            ha="left" if dx >= 0 else "right", va="center", fontsize=8, color=TEXT_INK,
-                            zorder=5, arrowprops={"arrowstyle": "-", "color": "#5b6168", "linewidth": 0.8},
-                            bbox={"boxstyle": "round,pad=0.2", "facecolor": "white", "edgecolor": "#c3c8cd",
-                                  "alpha": 0.9})
-    ax.plot([], [], marker="o", linestyle="none", color="#5b6168", label="lowest frequency")
-    ax.plot([], [], marker="s", linestyle="none", color="#5b6168", label="highest frequency")
-    ax.set_xlim(-1.18, 1.18)
-    ax.set_ylim(-1.12, 1.12)
-    ax.set_title(f"Input reflection, normalised to {z_sys:g} Ω", color=TEXT_INK, fontsize=11, loc="left")
-    ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0), fontsize=8, frameon=False)
-    fig.tight_layout()
+    fig = _figure(SMITH_FIGSIZE_IN)
+    whole, zoom = fig.add_subplot(1, 2, 1), fig.add_subplot(1, 2, 2)
+    for ax in (whole, zoom):
+        ax.set_aspect("equal")
+        ax.set_axis_off()
+    _smith_grid(whole)
+    _limit_circle(whole, min_rl_db, legend=True)
+    _traces(whole, perfs, load, legend=True)
+    whole.set_xlim(-1.18, 1.18)
+    whole.set_ylim(-1.12, 1.12)
+    whole.set_title(f"Input reflection, normalised to {z_sys:g} Ω", color=TEXT_INK, fontsize=11, loc="left")
+
+    radius = zoom_radius(perfs, min_rl_db)
+    _smith_grid(zoom, labels=False)
+    _rl_rings(zoom, radius)
+    _limit_circle(zoom, min_rl_db, legend=False)
+    _traces(zoom, perfs, load, legend=False)
+    if perfs:
+        _label_edges(zoom, perfs[0][1], radius)
+    zoom.set_xlim(-radius, radius)
+    zoom.set_ylim(-radius, radius)
+    zoom.add_patch(Rectangle((-radius, -radius), 2 * radius, 2 * radius, fill=False, edgecolor="#9aa0a6",
+                             linewidth=1.0, zorder=10, clip_on=False))
+    zoom.set_title(f"Centre enlarged (|Γ| up to {radius:.2f})", color=TEXT_INK, fontsize=11, loc="left")
+    whole.add_patch(Rectangle((-radius, -radius), 2 * radius, 2 * radius, fill=False, edgecolor="#9aa0a6",
+                              linewidth=0.9, linestyle=":", zorder=10))
+    whole.plot([], [], marker="o", linestyle="none", color="#5b6168", label="lowest frequency")
+    whole.plot([], [], marker="s", linestyle="none", color="#5b6168", label="highest frequency")
+    handles, labels = whole.get_legend_handles_labels()
+    ranks = [label for label, _ in perfs]
+    order = sorted(range(len(labels)), key=lambda j: (labels[j] in ranks, ranks.index(labels[j]) if labels[j] in ranks else j))
+    fig.legend([handles[j] for j in order], [labels[j] for j in order], loc="lower center", ncol=4, fontsize=8,
+               frameon=False, bbox_to_anchor=(0.5, 0.05))
+    _caption(fig, caption)
+    fig.subplots_adjust(left=0.02, right=0.98, top=0.92, bottom=0.17, wspace=0.08)
     return save_figure_atomic(fig, path)
 
 
@@ -255,6 +353,7 @@ def plot_pareto(
     points: Sequence[tuple[float, float]],
     front: Sequence[tuple[float, float]],
     path: str | os.PathLike,
+    caption: Caption | None = None,
 ) -> Path:
     """Margin (dB) against total line length (wavelengths at the reference frequency).
 
@@ -273,4 +372,4 @@ def plot_pareto(
         ax.scatter(f[:, 1], f[:, 0], s=36, color=DESIGN_COLOURS[0], zorder=4, label="Pareto front")
     ax.axhline(0.0, color=REQUIREMENT, linewidth=1.2, linestyle="--", label="mask met above this line")
     return _finish_xy(fig, ax, path, "total line length (wavelengths at the reference frequency)",
-                      "margin against the mask (dB)", "Margin against size", "lower right")
+                      "margin against the mask (dB)", "Margin against size", "lower right", caption)

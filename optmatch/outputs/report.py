@@ -3,21 +3,44 @@ page per study (``<study>/study.html`` and ``<study>/study.md``) with its plots 
 
 Self-contained and static: inline CSS, no script, plots referenced by relative paths inside the
 results root, so the folder can be copied or opened without any network.  Reads only JSON files:
-``batch.json`` (state of each study of the last batch, if any) and ``<study>/summary.json``.
+``batch.json`` (state of each study of the last batch, if any) and ``<study>/summary.json``, both
+through the typed readers of :mod:`optmatch.outputs.document`: a file of the wrong shape becomes
+an error row and one line naming the file and the key, never a traceback.
 """
 
 from __future__ import annotations
 
 import html
-import json
-import math
 import time
-from collections.abc import Mapping, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
+from urllib.parse import quote
 
 from optmatch.io.atomic import write_text_atomic
+from optmatch.outputs.document import (
+    FAIL,
+    FAIL_RATING,
+    PASS,
+    ResultsFileError,
+    SummaryDoc,
+    read_batch_state,
+    read_summary,
+)
+from optmatch.outputs.markdown import md, md_block, table
+from optmatch.outputs.tables import (
+    BUILD_HEAD,
+    DESIGN_HEAD,
+    LOAD_HEAD,
+    build_cells,
+    design_cells,
+    load_cells,
+    load_sentence,
+    mask_text,
+    mhz,
+    num,
+)
 
 REPORT_HTML = "report.html"
 REPORT_MD = "report.md"
@@ -58,9 +81,10 @@ tbody tr:hover { background: #fafbfd; }
 .chip { display: inline-block; padding: 1px 9px; border-radius: 999px; font-size: 13px; font-weight: 600;
         white-space: nowrap; }
 .chip.pass { color: var(--pass); background: var(--pass-bg); } .chip.fail { color: var(--fail); background: var(--fail-bg); }
+.chip.rating { color: var(--fail); background: var(--warn-bg); border: 1px solid var(--fail); }
 .chip.done { color: var(--ink); background: var(--band); border: 1px solid var(--line); }
 .chip.error, .chip.interrupted { color: var(--fail); background: var(--fail-bg); }
-.chip.running, .chip.pending { color: var(--warn); background: var(--warn-bg); }
+.chip.running, .chip.pending, .chip.not-finished { color: var(--warn); background: var(--warn-bg); }
 .msg { color: var(--fail); font-size: 13px; word-break: break-word; }
 .plots { display: grid; grid-template-columns: 1fr; gap: 16px; max-width: 980px; }
 figure { margin: 0; border: 1px solid var(--line); border-radius: 8px; padding: 10px; background: #fff; }
@@ -75,109 +99,127 @@ footer { color: var(--muted); font-size: 12px; margin-top: 36px; }
 
 @dataclass(frozen=True)
 class Row:
-    """One study in the report."""
+    """One study in the report: its status, a message, and its summary document when readable."""
 
     name: str
     status: str
     message: str
-    summary: Mapping | None
+    summary: SummaryDoc | None
     file: str
+
+
+NOT_FINISHED = ("pending", "running", "interrupted", "not finished")
+JOURNAL_GLOB = "*.journal"  # a study's trial storage: a folder holding one has started
 
 
 # ---------------------------------------------------------------- reading
 
 
-def _read_json(path: Path) -> Any:
+def _summary(path: Path) -> tuple[SummaryDoc | None, str]:
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
+        return read_summary(path), ""
+    except ResultsFileError as exc:
+        return None, str(exc)
 
 
-def collect_rows(root: Path) -> list[Row]:
-    """Studies of the last batch (in its order) and any other results folder under ``root``."""
+def collect_rows(root: Path) -> tuple[list[Row], list[str]]:
+    """Studies of the last batch (in its order) and every other study folder under ``root``, and one
+    line for every results file that cannot be read (the study's row then says so).
+
+    A folder with a journal but no summary.json is a study that started and has not finished.
+    """
     root = Path(root)
-    state = _read_json(root / STATE_NAME) or {}
     rows: list[Row] = []
+    problems: list[str] = []
     seen: set[str] = set()
-    for s in state.get("studies", []) if isinstance(state, dict) else []:
-        name = str(s.get("name", "?"))
-        summary = _read_json(root / name / "summary.json") if s.get("status") != "error" else None
-        rows.append(Row(name, str(s.get("status", "?")), str(s.get("message") or ""), summary,
-                        str(s.get("file", ""))))
-        seen.add(name)
-    for path in sorted(root.glob("*/summary.json")):
-        name = path.parent.name
+    entries = []
+    if (root / STATE_NAME).exists():
+        try:
+            entries = list(read_batch_state(root / STATE_NAME).studies)
+        except ResultsFileError as exc:
+            problems.append(str(exc))
+    for s in entries:
+        if s.name in seen:
+            continue
+        seen.add(s.name)
+        folder = root / s.name
+        summary, error = (None, "")
+        if s.status != "error" and (folder / "summary.json").exists():
+            summary, error = _summary(folder / "summary.json")
+        status, message = s.status, s.message
+        if error:
+            problems.append(error)
+            status, message = "error", error
+        elif s.status == "done" and summary is None:
+            status, message = "error", f"{folder / 'summary.json'}: file not found"
+        rows.append(Row(s.name, status, message, summary, s.file))
+    folders = sorted({p.parent for p in root.glob("*/summary.json")} | {p.parent for p in root.glob(f"*/{JOURNAL_GLOB}")})
+    for folder in folders:
+        name = folder.name
         if name in seen:
             continue
-        summary = _read_json(path)
-        rows.append(Row(name, "done" if summary else "error",
-                        "" if summary else f"{path}: unreadable", summary,
-                        str(summary.get("file", "")) if summary else ""))
-    return rows
+        seen.add(name)
+        if not (folder / "summary.json").exists():
+            rows.append(Row(name, "not finished", "a journal but no results yet: run the study again to resume",
+                            None, ""))
+            continue
+        summary, error = _summary(folder / "summary.json")
+        if error:
+            problems.append(error)
+        rows.append(Row(name, "done" if summary else "error", error, summary, summary.file if summary else ""))
+    return rows, problems
 
 
 # ---------------------------------------------------------------- figures
 
 
-def _best(summary: Mapping | None) -> Mapping | None:
-    designs = (summary or {}).get("designs") or []
-    return designs[0] if designs else None
-
-
-def cut_list_pieces(summary: Mapping | None) -> list | None:
-    """The cut list's pieces, or None when the summary has no cut list."""
-    cut = (summary or {}).get("cut_list")
-    if cut is None:
-        return None
-    if isinstance(cut, Mapping):
-        cut = cut.get("pieces", [])
-    return list(cut) if isinstance(cut, Sequence) and not isinstance(cut, str) else None
-
-
-def _length_text(summary: Mapping | None) -> str:
-    best = _best(summary)
+def _length_text(summary: SummaryDoc | None) -> str:
+    best = summary.best if summary else None
     if best is None:
         return DASH
-    wl = best.get("total_length_wl")
-    metres = [e.get("physical_m") for e in best.get("elements", []) if e.get("kind") != "lumped"]
-    text = f"{wl:.3f} λ" if isinstance(wl, (int, float)) else DASH
-    if metres and all(isinstance(m, (int, float)) for m in metres):
-        text += f" · {sum(metres):.3f} m"
+    metres = [e.physical_m for e in best.elements if e.kind != "lumped"]
+    text = f"{best.total_length_wl:.3f} λ"
+    if metres and all(m is not None for m in metres):
+        text += f" · {sum(m or 0.0 for m in metres):.3f} m"
     return text
 
 
-def _num(value: Any, fmt: str) -> str:
-    if not isinstance(value, (int, float)) or (isinstance(value, float) and not math.isfinite(value)):
-        return DASH
-    return format(value, fmt)
-
-
 def _verdict(row: Row) -> str | None:
-    if row.summary is None:
-        return None
-    return str(row.summary.get("verdict")) if row.summary.get("verdict") else None
+    return row.summary.verdict if row.summary is not None else None
 
 
 def _cells(row: Row) -> dict[str, str]:
     """Plain-text cells of one row, shared by the HTML and markdown tables."""
     s = row.summary
-    pieces = cut_list_pieces(s)
-    search = (s or {}).get("search", {})
+    build = s.build if s else None
     return {
         "status": row.status,
         "verdict": _verdict(row) or DASH,
-        "margin": _num((s or {}).get("best_margin_db"), "+.2f"),
+        "margin": num(s.best.margin_db, "+.2f", "+∞") if s and s.best else DASH,
         "length": _length_text(s),
-        "cut": str(len(pieces)) if pieces is not None else DASH,
-        "trials": _num(search.get("trials_complete"), "d"),
-        "time": _num(search.get("elapsed_s"), ".0f"),
+        "cut": str(len(build.pieces)) if build is not None else DASH,
+        "trials": str(s.search.trials_complete) if s else DASH,
+        "time": f"{s.search.elapsed_s:.0f}" if s else DASH,
     }
 
 
-COLUMNS = (("study", "Study", False), ("status", "Status", False), ("verdict", "Mask", False),
+COLUMNS = (("study", "Study", False), ("status", "Status", False), ("verdict", "Verdict", False),
            ("margin", "Best margin (dB)", True), ("length", "Total length", True),
            ("cut", "Cut-list pieces", True), ("trials", "Trials", True), ("time", "Time (s)", True))
+
+
+def chip_kind(verdict: str) -> str:
+    """CSS class of a verdict or status chip."""
+    return {PASS: "pass", FAIL: "fail", FAIL_RATING: "rating"}.get(verdict, verdict.replace(" ", "-"))
+
+
+def tally(rows: Sequence[Row]) -> list[tuple[int, str]]:
+    """The counts shown above the table."""
+    return [(len(rows), "studies"), (sum(_verdict(r) == PASS for r in rows), "meet their mask"),
+            (sum(_verdict(r) == FAIL for r in rows), "miss their mask"),
+            (sum(_verdict(r) == FAIL_RATING for r in rows), "over a rating"),
+            (sum(r.status == "error" for r in rows), "errors"),
+            (sum(r.status in NOT_FINISHED for r in rows), "not finished")]
 
 
 # ---------------------------------------------------------------- HTML
@@ -193,8 +235,8 @@ def _page(title: str, body: str) -> str:
             f"<style>{CSS}</style>\n</head>\n<body>\n<main>\n{body}\n</main>\n</body>\n</html>\n")
 
 
-def _chip(text: str, kind: str) -> str:
-    return f'<span class="chip {_e(kind)}">{_e(text)}</span>'
+def _chip(text: str) -> str:
+    return f'<span class="chip {_e(chip_kind(text))}">{_e(text)}</span>'
 
 
 def _cautions_html() -> str:
@@ -203,136 +245,93 @@ def _cautions_html() -> str:
 
 
 def _tiles(rows: list[Row]) -> str:
-    n_pass = sum(_verdict(r) == "PASS" for r in rows)
-    n_fail = sum(_verdict(r) == "FAIL" for r in rows)
-    n_err = sum(r.status in ("error", "interrupted") for r in rows)
-    n_open = sum(r.status in ("pending", "running") for r in rows)
-    tiles = [(len(rows), "studies"), (n_pass, "meet their mask"), (n_fail, "miss their mask"),
-             (n_err, "errors"), (n_open, "not finished")]
     return '<div class="tiles">' + "".join(f'<div class="tile"><b>{n}</b><span>{_e(t)}</span></div>'
-                                          for n, t in tiles) + "</div>"
+                                          for n, t in tally(rows)) + "</div>"
 
 
 def batch_html(rows: list[Row], generated: str) -> str:
     """The batch report page."""
-    head = "".join(f'<th class="{"num" if num else ""}">{_e(label)}</th>' for _, label, num in COLUMNS)
+    head = "".join(f'<th class="{"num" if num_col else ""}">{_e(label)}</th>' for _, label, num_col in COLUMNS)
     body_rows = []
     for r in rows:
         c = _cells(r)
-        link = f'<a href="{_e(r.name)}/{STUDY_HTML}">{_e(r.name)}</a>' if r.summary else _e(r.name)
+        link = f'<a href="{_e(quote(r.name))}/{STUDY_HTML}">{_e(r.name)}</a>' if r.summary else _e(r.name)
         first = link + (f'<div class="msg">{_e(r.message)}</div>' if r.message and r.status != "done" else "")
-        verdict = _chip(c["verdict"], c["verdict"].lower()) if c["verdict"] != DASH else DASH
-        cells = [first, _chip(c["status"], c["status"]), verdict] + [c[k] for k in
-                                                                    ("margin", "length", "cut", "trials", "time")]
-        tds = "".join(f'<td class="{"num" if num else ""}">{cell}</td>'
-                      for cell, (_, _, num) in zip(cells, COLUMNS, strict=True))
+        if r.summary is not None and r.summary.verdict != PASS:
+            first += f'<div class="msg">{_e(r.summary.verdict_line)}</div>'
+        verdict = _chip(c["verdict"]) if c["verdict"] != DASH else DASH
+        cells = [first, _chip(c["status"]), verdict] + [_e(c[k]) for k in ("margin", "length", "cut", "trials", "time")]
+        tds = "".join(f'<td class="{"num" if num_col else ""}">{cell}</td>'
+                      for cell, (_, _, num_col) in zip(cells, COLUMNS, strict=True))
         body_rows.append(f'<tr class="study" data-study="{_e(r.name)}">{tds}</tr>')
-    table = (f'<table id="studies"><thead><tr>{head}</tr></thead><tbody>\n' + "\n".join(body_rows)
-             + "\n</tbody></table>")
+    table_html = (f'<table id="studies"><thead><tr>{head}</tr></thead><tbody>\n' + "\n".join(body_rows)
+                  + "\n</tbody></table>")
     body = (f"<h1>Batch report</h1>\n<p class=\"sub\">optmatch · {len(rows)} studies · written {_e(generated)}. "
-            f"Margin: worst-case dB by which the best design clears its mask (negative = misses it).</p>\n"
-            f"{_tiles(rows)}\n{table}\n<h2>Before you build</h2>\n{_cautions_html()}\n"
+            f"Margin: worst-case dB by which the best design clears its mask (negative = misses it). "
+            f"FAIL rating: meets the mask but is over a cable's or connector's rating at the drive power.</p>\n"
+            f"{_tiles(rows)}\n{table_html}\n<h2>Before you build</h2>\n{_cautions_html()}\n"
             f'<footer>Markdown twin: <a href="{REPORT_MD}">{REPORT_MD}</a></footer>')
     return _page("optmatch batch report", body)
 
 
-def _element_text(e: Mapping) -> str:
-    if e.get("kind") == "lumped":
-        return f"{e.get('connection', '')} {str(e.get('part', '')).upper()} {_num(e.get('value'), '.4g')}"
-    label = str(e.get("kind", "")).replace("_", " ")
-    if e.get("end"):
-        label += f" ({e['end']})"
-    parts = [label, f"{_num(e.get('electrical_deg'), '.1f')}°", f"{_num(e.get('z0_ohm'), '.0f')} Ω"]
-    if isinstance(e.get("physical_m"), (int, float)):
-        parts.append(f"{e['physical_m'] * 1000:.0f} mm")
-    return " ".join(parts)
+def _html_table(head: Sequence[str], rows: Sequence[Sequence[str]], numeric: str = "") -> str:
+    """A table; ``numeric`` marks right-aligned columns with ``r`` (one letter per column)."""
+    def cls(i: int) -> str:
+        return "num" if i < len(numeric) and numeric[i] == "r" else ""
 
-
-def _design_rows(summary: Mapping) -> list[list[str]]:
-    out = []
-    for d in summary.get("designs", []):
-        out.append([str(d.get("rank", "")), "PASS" if d.get("passes") else "FAIL",
-                    " · ".join(_element_text(e) for e in d.get("elements", [])),
-                    _num(d.get("margin_db"), "+.2f"), _num(d.get("worst_return_loss_db"), ".2f"),
-                    _num((d.get("worst_freq_hz") or math.nan) / 1e6, ".2f"), _num(d.get("total_length_wl"), ".3f")])
-    return out
-
-
-DESIGN_HEAD = ("Rank", "Mask", "Elements, load outwards", "Margin (dB)", "Worst RL (dB)", "At (MHz)", "Length (λ)")
-
-
-CUT_COLUMNS = (("element", "#"), ("part", "Part"), ("cable", "Cable"), ("source", "From"),
-               ("cut_mm", "Cut (mm)"), ("cut_long_mm", "Cut long (mm)"), ("electrical_deg", "Electrical (°)"),
-               ("width_mm", "Width (mm)"), ("advice", "Advice"))
-
-
-def _cut_cell(value: Any, key: str) -> str:
-    if value is None or value == "":
-        return DASH
-    if isinstance(value, float):
-        return f"{value:.1f}" if key.endswith(("_mm", "_deg")) else f"{value:.4g}"
-    return str(value)
-
-
-def _cut_table(pieces: list) -> tuple[list[str], list[list[str]]]:
-    """Header and rows of the cut list: the builder's columns that any piece fills, else every key."""
-    dicts = [p if isinstance(p, Mapping) else {"piece": p} for p in pieces]
-    known = [(k, label) for k, label in CUT_COLUMNS if any(d.get(k) not in (None, "") for d in dicts)]
-    if not known:
-        keys: list[str] = []
-        for d in dicts:
-            keys += [k for k in d if k not in keys]
-        known = [(k, k.replace("_", " ")) for k in keys]
-    return [label for _, label in known], [[_cut_cell(d.get(k), k) for k, _ in known] for d in dicts]
-
-
-def _cut_notes(summary: Mapping) -> list[str]:
-    """Cable totals and the trim rule that come with a cut list."""
-    cut = summary.get("cut_list")
-    if not isinstance(cut, Mapping):
-        return []
-    notes = [f"{t.get('cable', '?')}: {t.get('pieces', '?')} pieces, {_num(t.get('total_mm'), '.0f')} mm in total"
-             for t in cut.get("cable_totals") or [] if isinstance(t, Mapping)]
-    if cut.get("trim_rule"):
-        notes.append(f"Trim: {cut['trim_rule']}")
-    return notes
-
-
-def _html_table(head: Sequence[str], rows: list[list[str]], numeric_from: int) -> str:
-    th = "".join(f'<th class="{"num" if i >= numeric_from else ""}">{_e(h)}</th>' for i, h in enumerate(head))
-    trs = "".join("<tr>" + "".join(f'<td class="{"num" if i >= numeric_from else ""}">{_e(c)}</td>'
-                                   for i, c in enumerate(r)) + "</tr>" for r in rows)
+    th = "".join(f'<th class="{cls(i)}">{_e(h)}</th>' for i, h in enumerate(head))
+    trs = "".join("<tr>" + "".join(f'<td class="{cls(i)}">{_e(c)}</td>' for i, c in enumerate(r)) + "</tr>"
+                  for r in rows)
     return f"<table><thead><tr>{th}</tr></thead><tbody>{trs}</tbody></table>"
 
 
+def _build_notes(s: SummaryDoc) -> list[str]:
+    """Cable totals and the trim rule that come with the build sheet."""
+    if s.build is None:
+        return []
+    notes = [f"{t.cable}: {t.pieces} pieces, {t.total_mm:.0f} mm in total" for t in s.build.cable_totals]
+    return [*notes, f"Trim: {s.build.trim_rule}"]
+
+
 def study_html(row: Row, folder: Path) -> str:
-    """The page of one study: facts, plots, designs, cut list, cautions."""
-    s = row.summary or {}
-    best = _best(s)
-    verdict = _verdict(row) or DASH
-    facts = [("Mask", _chip(verdict, verdict.lower()) if verdict != DASH else DASH),
-             ("Best margin", f"{_num(s.get('best_margin_db'), '+.2f')} dB"),
-             ("Worst return loss", f"{_num((best or {}).get('worst_return_loss_db'), '.2f')} dB at "
-                                   f"{_num(((best or {}).get('worst_freq_hz') or math.nan) / 1e6, '.2f')} MHz"),
-             ("Total length", _e(_length_text(s))),
-             ("System impedance", f"{_num(s.get('system_ohm'), 'g')} Ω"),
-             ("Trials", _e(_num(s.get("search", {}).get("trials_complete"), "d"))),
-             ("Study file", _e(s.get("file", row.file)))]
+    """The page of one study: verdict, the load, plots, designs, build sheet, ratings, cautions."""
+    s = row.summary
+    assert s is not None
+    best = s.best
+    facts = [("Verdict", _chip(s.verdict)), ("Why", _e(s.verdict_line)),
+             ("Best margin", f"{_e(num(best.margin_db, '+.2f', '+∞')) if best else DASH} dB"),
+             ("Worst return loss", f"{num(best.worst_return_loss_db, '.2f')} dB at {best.worst_freq_hz / 1e6:.2f} MHz"
+              if best else DASH),
+             ("Total length", _e(_length_text(s))), ("System impedance", f"{s.system_ohm:g} Ω"),
+             ("Mask", _e(mask_text(s.mask))),
+             ("Electrical lengths at", _e(mhz(s.reference_hz))), ("Ranked by", _e(s.ranked_by)),
+             ("Trials", str(s.search.trials_complete)), ("Study file", _e(s.file or row.file))]
+    if s.invented:
+        facts.insert(2, ("Data", "invented (the study says so): not a measurement"))
     dl = "".join(f"<dt>{_e(k)}</dt><dd>{v}</dd>" for k, v in facts)
     figs = "".join(f'<figure><img src="{_e(name)}" alt="{_e(caption)}"><figcaption>{_e(caption)}</figcaption></figure>'
                    for name, caption in PLOTS if (folder / name).exists())
-    pieces = cut_list_pieces(s)
-    if pieces:
-        head, rows = _cut_table(pieces)
-        notes = "".join(f"<li>{_e(n)}</li>" for n in _cut_notes(s))
-        cut = _html_table(head, rows, len(head)) + (f"<ul>{notes}</ul>" if notes else "")
+    if s.build is not None and s.build.pieces:
+        notes = "".join(f"<li>{_e(n)}</li>" for n in _build_notes(s))
+        steps = "".join(f"<li>{_e(step)}</li>" for step in s.build.assembly)
+        build = (f"<p>{_e(s.build.allowances)}</p>" + _html_table(BUILD_HEAD, build_cells(s.build), "rllrlrrr")
+                 + f"<h3>Assembly, from the load to the source</h3><ol class=\"assembly\">{steps}</ol>"
+                 + f"<ul>{notes}</ul>")
     else:
-        cut = "<p>No cut list in this study's results yet.</p>" if pieces is None else "<p>Nothing to cut.</p>"
-    desc = f'<p class="sub">{_e(s.get("description", ""))}</p>' if s.get("description") else ""
+        build = "<p>Nothing to cut.</p>"
+    ratings = ""
+    if best is not None and best.power is not None:
+        items = "".join(f"<li>{_e(line)}</li>" for line in best.power.over_rating)
+        ratings = (f"<h2>Ratings at {best.power.drive_w:g} W</h2>"
+                   + (f'<ul class="msg">{items}</ul>' if items else "<p>Within every rating in force.</p>"))
+    desc = f'<p class="sub">{_e(s.description)}</p>' if s.description else ""
     body = (f'<p><a href="../{REPORT_HTML}">← all studies</a></p>\n<h1>{_e(row.name)}</h1>\n{desc}\n'
-            f'<dl class="facts">{dl}</dl>\n<h2>Plots</h2>\n<div class="plots">{figs or "<p>No plots.</p>"}</div>\n'
-            f"<h2>Best designs</h2>\n{_html_table(DESIGN_HEAD, _design_rows(s), 3)}\n"
-            f"<h2>Cut list</h2>\n{cut}\n<h2>Before you build</h2>\n{_cautions_html()}\n"
+            f'<dl class="facts">{dl}</dl>\n<h2>The load alone (no network)</h2>\n'
+            f"{_html_table(LOAD_HEAD, load_cells(s.load), 'lrrrr')}\n<p>{_e(load_sentence(s.load))}</p>\n"
+            f'<h2>Plots</h2>\n<div class="plots">{figs or "<p>No plots.</p>"}</div>\n'
+            f"<h2>Ranked designs</h2>\n{_html_table(DESIGN_HEAD, [design_cells(d) for d in s.designs], 'rlrrrrrl')}\n"
+            f"<h2>Build sheet of the best design</h2>\n{build}\n{ratings}\n"
+            f"<h2>Before you build</h2>\n{_cautions_html()}\n"
             f'<footer>Markdown twin: <a href="{STUDY_MD}">{STUDY_MD}</a> · data: '
             f'<a href="summary.json">summary.json</a></footer>')
     return _page(f"{row.name} · optmatch", body)
@@ -341,53 +340,57 @@ def study_html(row: Row, folder: Path) -> str:
 # ---------------------------------------------------------------- markdown
 
 
-def _md_cell(text: str) -> str:
-    return str(text).replace("|", "\\|").replace("\n", " ")
-
-
-def _md_table(head: Sequence[str], rows: list[list[str]], numeric_from: int) -> list[str]:
-    align = ["---:" if i >= numeric_from else "---" for i in range(len(head))]
-    return (["| " + " | ".join(_md_cell(h) for h in head) + " |", "| " + " | ".join(align) + " |"]
-            + ["| " + " | ".join(_md_cell(c) for c in r) + " |" for r in rows])
-
-
 def batch_markdown(rows: list[Row], generated: str) -> str:
     """The markdown twin of the batch report."""
     table_rows = []
     for r in rows:
         c = _cells(r)
-        name = f"[{r.name}]({r.name}/{STUDY_MD})" if r.summary else r.name
+        name = f"[{md(r.name)}]({quote(r.name)}/{STUDY_MD})" if r.summary else md(r.name)
         if r.message and r.status != "done":
-            name += f" ({r.message})"
-        table_rows.append([name, c["status"], c["verdict"], c["margin"], c["length"], c["cut"], c["trials"],
+            name += f" ({md(r.message)})"
+        if r.summary is not None and r.summary.verdict != PASS:
+            name += f" ({md(r.summary.verdict_line)})"
+        table_rows.append([name, md(c["status"]), md(c["verdict"]), c["margin"], c["length"], c["cut"], c["trials"],
                            c["time"]])
-    lines = ["# Batch report", "", f"optmatch · {len(rows)} studies · written {generated}.", "",
-             *_md_table([label for _, label, _ in COLUMNS], table_rows, 3), "", "## Before you build", "",
+    counts = ", ".join(f"{n} {t}" for n, t in tally(rows)[1:])
+    lines = ["# Batch report", "", f"optmatch · {len(rows)} studies ({counts}) · written {md(generated)}.", "",
+             *table([label for _, label, _ in COLUMNS], table_rows, "lll" + "r" * 5), "", "## Before you build", "",
              *[f"- {c}" for c in CAUTIONS], ""]
     return "\n".join(lines)
 
 
 def study_markdown(row: Row, folder: Path) -> str:
     """The markdown twin of one study page."""
-    s = row.summary or {}
-    lines = [f"# {row.name}", "", f"[← all studies](../{REPORT_MD})", ""]
-    if s.get("description"):
-        lines += [str(s["description"]).strip(), ""]
-    lines += [f"- Mask: {_verdict(row) or DASH}", f"- Best margin: {_num(s.get('best_margin_db'), '+.2f')} dB",
-              f"- Total length: {_length_text(s)}", ""]
+    s = row.summary
+    assert s is not None
+    lines = [f"# {md(row.name)}", "", f"[← all studies](../{REPORT_MD})", ""]
+    if s.description:
+        lines += [md_block(s.description), ""]
+    lines += [f"**Verdict:** {md(s.verdict_line)}", "", f"- Mask: {mask_text(s.mask)}",
+              f"- Total length: {_length_text(s)}",
+              f"- Electrical lengths at {mhz(s.reference_hz)}", ""]
+    if s.invented:
+        lines += ["*The study says its data is invented: not a measurement.*", ""]
+    lines += ["## The load alone (no network)", "", *table(LOAD_HEAD, load_cells(s.load), "lrrrr"), "",
+              load_sentence(s.load), ""]
     for name, caption in PLOTS:
         if (folder / name).exists():
             lines += [f"![{caption}]({name})", ""]
-    lines += ["## Best designs", "", *_md_table(DESIGN_HEAD, _design_rows(s), 3), "", "## Cut list", ""]
-    pieces = cut_list_pieces(s)
-    if pieces:
-        head, rows = _cut_table(pieces)
-        lines += _md_table(head, rows, len(head))
-        notes = _cut_notes(s)
-        if notes:
-            lines += ["", *[f"- {n}" for n in notes]]
+    lines += ["## Ranked designs", "", *table(DESIGN_HEAD, [[md(c) for c in design_cells(d)] for d in s.designs],
+                                             "llrrrrrl"), ""]
+    lines += ["## Build sheet of the best design", ""]
+    if s.build is not None and s.build.pieces:
+        lines += [md_block(s.build.allowances), "",
+                  *table(BUILD_HEAD, [[md(c) for c in r] for r in build_cells(s.build)], "llllllrr"), "",
+                  "Assembly, from the load to the source:", "",
+                  *[f"{k}. {md_block(step)}" for k, step in enumerate(s.build.assembly, start=1)], "",
+                  *[f"- {md_block(n)}" for n in _build_notes(s)]]
     else:
-        lines.append("No cut list in this study's results yet." if pieces is None else "Nothing to cut.")
+        lines.append("Nothing to cut.")
+    best = s.best
+    if best is not None and best.power is not None:
+        lines += ["", f"## Ratings at {best.power.drive_w:g} W", ""]
+        lines += [f"- **Over rating:** {md(line)}" for line in best.power.over_rating] or ["Within every rating in force."]
     lines += ["", "## Before you build", "", *[f"- {c}" for c in CAUTIONS], ""]
     return "\n".join(lines)
 
@@ -395,20 +398,29 @@ def study_markdown(row: Row, folder: Path) -> str:
 # ---------------------------------------------------------------- writing
 
 
-def write_report(root: Path) -> tuple[Path, Path]:
-    """Write ``report.html``, ``report.md`` and every study page under ``root``; returns the two paths."""
+@dataclass(frozen=True)
+class Written:
+    """The report's two files, and a line for every results file that could not be read."""
+
+    html: Path
+    markdown: Path
+    problems: list[str]
+
+
+def write_report(root: Path) -> Written:
+    """Write ``report.html``, ``report.md`` and every study page under ``root``."""
     root = Path(root)
-    rows = collect_rows(root)
+    rows, problems = collect_rows(root)
     generated = time.strftime("%Y-%m-%d %H:%M")
     for r in rows:
-        if r.summary:
+        if r.summary is not None:
             folder = root / r.name
             write_text_atomic(folder / STUDY_HTML, study_html(r, folder))
             write_text_atomic(folder / STUDY_MD, study_markdown(r, folder))
     html_path = write_text_atomic(root / REPORT_HTML, batch_html(rows, generated))
     md_path = write_text_atomic(root / REPORT_MD, batch_markdown(rows, generated))
-    return html_path, md_path
+    return Written(html_path, md_path, problems)
 
 
-__all__ = ["Row", "batch_html", "batch_markdown", "collect_rows", "cut_list_pieces", "study_html",
-           "study_markdown", "write_report"]
+__all__ = ["Row", "Written", "batch_html", "batch_markdown", "collect_rows", "study_html", "study_markdown",
+           "write_report"]

@@ -1,4 +1,5 @@
-"""Tabular and written results of a study: the ``designs.csv`` rows and the ``summary.md`` report.
+"""Tables and the written report of one study, all from its summary document: the rows shared by the
+terminal, summary.md, the cut list and the study page; ``designs.csv``; ``summary.md``.
 
 Units in column names: ``_db``, ``_hz``, ``_wl`` (wavelengths at the reference frequency),
 ``_ohm``, ``_deg``, ``_mm``; lumped values in Ω, H or F as named by ``e{i}_value_unit``.
@@ -13,12 +14,15 @@ import os
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 
-from optmatch.domain.design import Design, describe, performance
-from optmatch.domain.problem import Problem
+from optmatch.domain.design import ElementReport
 from optmatch.io.atomic import write_text_atomic
-from optmatch.units import parse_frequency
+from optmatch.outputs.document import BuildSheet, DesignDoc, LoadView, MaskSegment, SummaryDoc
+from optmatch.outputs.markdown import md, md_block, table
 
 VALUE_UNIT = {"r": "ohm", "l": "H", "c": "F"}
+PART_NAMES = {"r": "resistor", "l": "inductor", "c": "capacitor"}
+PART_UNITS = {"r": "Ω", "l": "H", "c": "F"}
+DASH = "–"
 
 CAUTIONS = (
     "Open stub ends, and lines that are not matched, carry high RF voltage at transmit power: "
@@ -33,47 +37,135 @@ CAUTIONS = (
 )
 
 
-def design_summary(problem: Problem, design: Design, rank: int) -> dict:
-    """One entry of the summary document's ``designs`` list (see :func:`summary_markdown`)."""
-    perf = performance(problem, design)
-    return {
-        "rank": rank,
-        "margin_db": float(design.margin_db),
-        "worst_rl_db": float(perf.worst_rl_db),
-        "worst_freq_hz": float(perf.freq[perf.worst_index]),
-        "length_wl": float(design.length_wl),
-        "trial": int(design.trial),
-        "elements": [rep.as_dict() for rep in describe(problem, design)],
-    }
+# ---------------------------------------------------------------- shared formatting
 
 
-def design_rows(problem: Problem, designs: Sequence[Design]) -> list[dict]:
+def si(value: float, unit: str) -> str:
+    """A value with an SI prefix, e.g. 2.2e-11 F -> '22 pF'."""
+    if value == 0 or not math.isfinite(value):
+        return f"{value:g} {unit}"
+    for factor, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"),
+                           (1e-9, "n"), (1e-12, "p"), (1e-15, "f")):
+        if abs(value) >= factor:
+            return f"{value / factor:.4g} {prefix}{unit}"
+    return f"{value:.3g} {unit}"
+
+
+def mhz(hz: float) -> str:
+    return f"{hz / 1e6:.3f} MHz"
+
+
+def num(value: float | None, fmt: str, infinite: str = "∞") -> str:
+    """A number, a dash for None, ``infinite`` for +inf."""
+    if value is None:
+        return DASH
+    if value == math.inf:
+        return infinite
+    return format(value, fmt)
+
+
+def element_text(e: ElementReport) -> str:
+    """One element in a line: ``line 44.1° 50 Ω``, ``shunt stub (open) 68.7° 50 Ω``, ``shunt capacitor 3.3 pF``."""
+    if e.kind == "lumped":
+        return f"{e.connection} {PART_NAMES.get(e.part or '', 'part')} {si(float(e.value or 0.0), PART_UNITS.get(e.part or '', ''))}"
+    label = e.kind.replace("_", " ") + (f" ({e.end})" if e.end else "")
+    return f"{label} {float(e.electrical_deg or 0.0):.1f}° {float(e.z0_ohm or 0.0):.4g} Ω"
+
+
+def elements_text(d: DesignDoc) -> str:
+    return " · ".join(element_text(e) for e in d.elements)
+
+
+def yield_text(d: DesignDoc) -> str:
+    return DASH if d.robustness is None else f"{100.0 * d.robustness.yield_frac:.0f}%"
+
+
+DESIGN_HEAD = ("rank", "verdict", "margin (dB)", "worst RL (dB)", "at (MHz)", "length (λ)", "yield",
+               "elements, load outwards (electrical length, Z0)")
+
+
+def design_cells(d: DesignDoc) -> list[str]:
+    """A ranked design's row (shared by the terminal, summary.md and the study page)."""
+    return [str(d.rank), d.verdict, num(d.margin_db, "+.2f", "+∞"), num(d.worst_return_loss_db, ".2f"),
+            f"{d.worst_freq_hz / 1e6:.2f}", f"{d.total_length_wl:.3f}", yield_text(d), elements_text(d)]
+
+
+BUILD_HEAD = ("#", "part", "cable", "Z0 (Ω)", "end", "electrical incl. allowances (°)", "allowances (°)", "cut (mm)")
+
+
+def build_cells(sheet: BuildSheet) -> list[list[str]]:
+    """The build sheet's rows, one per piece (shared by the terminal, summary.md, cut list and study page)."""
+    return [[str(p.element), p.kind.replace("_", " "), p.cable, f"{p.z0_ohm:.4g}", p.end or DASH, f"{p.electrical_deg:.1f}",
+             f"{p.allowance_deg:.1f}", f"{p.cut_mm:.1f}"] for p in sheet.pieces]
+
+
+MASK_HEAD = ("from", "to", "min. return loss (dB)", "max. VSWR", "max. network loss (dB)")
+
+
+def mask_cells(mask: Sequence[MaskSegment]) -> list[list[str]]:
+    """Every segment with both its return loss and its VSWR (the same requirement)."""
+    return [[mhz(s.f_lo_hz), mhz(s.f_hi_hz), f"{s.min_rl_db:g}", num(s.max_vswr, ".3g"), num(s.max_loss_db, "g")]
+            for s in mask]
+
+
+def mask_text(mask: Sequence[MaskSegment]) -> str:
+    """The mask in one line, each segment as return loss and VSWR: ``420.000–450.000 MHz: RL ≥ 15 dB (VSWR ≤ 1.43)``."""
+    parts = []
+    for s in mask:
+        span = mhz(s.f_lo_hz) if s.f_lo_hz == s.f_hi_hz else f"{s.f_lo_hz / 1e6:.3f}–{mhz(s.f_hi_hz)}"
+        loss = f", network loss ≤ {s.max_loss_db:g} dB" if s.max_loss_db is not None else ""
+        parts.append(f"{span}: return loss ≥ {s.min_rl_db:g} dB (VSWR ≤ {num(s.max_vswr, '.3g')}){loss}")
+    return "; ".join(parts)
+
+
+LOAD_HEAD = ("where", "frequency", "impedance (Ω)", "return loss (dB)", "VSWR")
+
+
+def load_cells(load: LoadView) -> list[list[str]]:
+    return [[p.label, mhz(p.freq_hz), f"{p.r_ohm:.2f} {'+' if p.x_ohm >= 0 else '−'} j{abs(p.x_ohm):.2f}",
+             num(p.return_loss_db, ".2f"), num(p.vswr, ".2f")] for p in load.points]
+
+
+def load_sentence(load: LoadView) -> str:
+    """The unmatched margin, and "no network needed" when the bare load meets the mask."""
+    text = (f"Unmatched margin against the mask: {num(load.unmatched_margin_db, '+.2f', '+∞')} dB (worst return loss "
+            f"{num(load.worst_return_loss_db, '.2f')} dB at {mhz(load.worst_freq_hz)}).")
+    if load.meets_mask:
+        text += " The bare load already meets the mask: no network needed."
+    return text
+
+
+# ---------------------------------------------------------------- designs.csv
+
+
+def design_rows(designs: Sequence[DesignDoc]) -> list[dict]:
     """One flat row per design, best first (``rank`` 1), for ``designs.csv``.
 
-    Columns: rank, margin_db, worst_rl_db, worst_freq_hz, length_wl, then per element ``e{i}_``
-    kind, end, connection, part, medium, z0_ohm, length_deg (cable + allowances), length_wl,
-    length_mm (cable to cut), value, value_unit.  Elements are numbered from the load outwards.
-    Missing quantities are None.
+    Columns: rank, verdict, margin_db, worst_rl_db, worst_freq_hz, length_wl, yield_frac, then per
+    element ``e{i}_`` kind, end, connection, part, medium, z0_ohm, length_deg (cable + allowances),
+    length_wl, length_mm (cable to cut), value, value_unit.  Elements are numbered from the load
+    outwards.  Missing quantities are None.
     """
     rows = []
-    for rank, design in enumerate(designs, start=1):
-        entry = design_summary(problem, design, rank)
-        row: dict = {key: entry[key] for key in ("rank", "margin_db", "worst_rl_db", "worst_freq_hz", "length_wl")}
-        for el in entry["elements"]:
-            i = el["index"]
-            phys = el["physical_m"]
+    for d in designs:
+        row: dict = {"rank": d.rank, "verdict": d.verdict, "margin_db": d.margin_db,
+                     "worst_rl_db": d.worst_return_loss_db, "worst_freq_hz": d.worst_freq_hz,
+                     "length_wl": d.total_length_wl,
+                     "yield_frac": None if d.robustness is None else d.robustness.yield_frac}
+        for el in d.elements:
+            i = el.index
             row.update({
-                f"e{i}_kind": el["kind"],
-                f"e{i}_end": el["end"],
-                f"e{i}_connection": el["connection"],
-                f"e{i}_part": el["part"],
-                f"e{i}_medium": el["medium"] or None,
-                f"e{i}_z0_ohm": el["z0_ohm"],
-                f"e{i}_length_deg": el["electrical_deg"],
-                f"e{i}_length_wl": el["wavelengths"],
-                f"e{i}_length_mm": None if phys is None else phys * 1e3,
-                f"e{i}_value": el["value"],
-                f"e{i}_value_unit": VALUE_UNIT.get(el["part"] or ""),
+                f"e{i}_kind": el.kind,
+                f"e{i}_end": el.end,
+                f"e{i}_connection": el.connection,
+                f"e{i}_part": el.part,
+                f"e{i}_medium": el.medium or None,
+                f"e{i}_z0_ohm": el.z0_ohm,
+                f"e{i}_length_deg": el.electrical_deg,
+                f"e{i}_length_wl": el.wavelengths,
+                f"e{i}_length_mm": None if el.physical_m is None else el.physical_m * 1e3,
+                f"e{i}_value": el.value,
+                f"e{i}_value_unit": VALUE_UNIT.get(el.part or ""),
             })
         rows.append(row)
     return rows
@@ -106,49 +198,6 @@ def write_designs_csv(rows: Sequence[Mapping], path: str | os.PathLike) -> Path:
 # ---------------------------------------------------------------- summary.md
 
 
-def _si(value: float, unit: str) -> str:
-    """A value with an SI prefix, e.g. 2.2e-11 F -> '22 pF'."""
-    if value == 0 or not math.isfinite(value):
-        return f"{value:g} {unit}"
-    for factor, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"),
-                           (1e-9, "n"), (1e-12, "p"), (1e-15, "f")):
-        if abs(value) >= factor:
-            return f"{value / factor:.4g} {prefix}{unit}"
-    return f"{value:.3g} {unit}"
-
-
-def _mhz(hz: float) -> str:
-    return f"{hz / 1e6:.3f} MHz"
-
-
-def _num(value: object, fmt: str) -> str:
-    return "–" if value is None else format(value, fmt)
-
-
-def _element_name(el: Mapping) -> str:
-    kind = el["kind"]
-    if kind == "line":
-        return "line"
-    if kind in ("shunt_stub", "series_stub"):
-        return f"{kind.replace('_', ' ')}, {el['end']} end"
-    part = {"r": "resistor", "l": "inductor", "c": "capacitor"}.get(el.get("part") or "", "part")
-    return f"{el.get('connection') or ''} {part}".strip()
-
-
-def _element_value(el: Mapping) -> str:
-    if el.get("value") is None:
-        return "–"
-    unit = {"r": "Ω", "l": "H", "c": "F"}.get(el.get("part") or "", "")
-    return _si(float(el["value"]), unit)
-
-
-def _table(header: Sequence[str], rows: Sequence[Sequence[str]], align: str) -> list[str]:
-    marks = {"l": ":---", "r": "---:", "c": ":---:"}
-    out = ["| " + " | ".join(header) + " |", "|" + "|".join(marks[a] for a in align) + "|"]
-    out += ["| " + " | ".join(str(c).replace("|", "\\|") for c in row) + " |" for row in rows]
-    return out
-
-
 DEFAULT_PLOTS = {
     "Return loss against the mask": "return_loss.png",
     "Smith chart of the input": "smith.png",
@@ -156,212 +205,110 @@ DEFAULT_PLOTS = {
 }
 RESULT_FILES = {
     "Ranked designs (CSV)": "designs.csv",
+    "Cut list": "cut_list.md",
     "Best network, 2-port Touchstone (port 1 to the source)": "best_network.s2p",
     "Matched input, 1-port Touchstone": "matched_input.s1p",
     "All figures (JSON)": "summary.json",
 }
 
 
-def _get(d: Mapping, *keys: str, default: object = None) -> object:
-    """The first of ``keys`` present in ``d`` (documents from different writers name things apart)."""
-    for key in keys:
-        if key in d and d[key] is not None:
-            return d[key]
-    return default
+def _cells(rows: Sequence[Sequence[str]]) -> list[list[str]]:
+    """Every cell escaped as markdown text."""
+    return [[md(c) for c in row] for row in rows]
 
 
-def _hz(value: object) -> float | None:
-    """A frequency in Hz from a number or a typed quantity such as ``'420MHz'``."""
-    if value is None:
-        return None
-    try:
-        return parse_frequency(value)  # type: ignore[arg-type]
-    except ValueError:
-        return None
-
-
-def _mask_rows(mask: Sequence[Mapping]) -> list[list[str]]:
-    rows = []
-    for seg in mask:
-        f_lo, f_hi = _get(seg, "f_lo_hz", "from", "from_"), _get(seg, "f_hi_hz", "to")
-        lo_hz, hi_hz = _hz(f_lo), _hz(f_hi)
-        req, loss = _get(seg, "min_rl_db", "return_loss"), _get(seg, "max_loss_db", "max_loss")
-        rows.append([
-            _mhz(lo_hz) if lo_hz is not None else str(f_lo),
-            _mhz(hi_hz) if hi_hz is not None else str(f_hi),
-            "–" if req is None else f"{float(req):g}",
-            "–" if loss is None else f"{float(loss):g}",
-        ])
-    return rows
-
-
-def _describe_load(load: object) -> str:
-    if isinstance(load, Mapping):
-        return "; ".join(f"{k}: {v}" for k, v in load.items())
-    return "not described" if load is None else str(load)
-
-
-def _robustness_markdown(rob: Mapping | None, tol: Mapping) -> list[str]:
-    """The yield and sensitivity section for the best design (empty without a Monte Carlo)."""
-    if not rob:
+def build_markdown(doc: SummaryDoc) -> list[str]:
+    """The build sheet section: pieces in mm of their cable, the allowance sentence, the assembly."""
+    sheet = doc.build
+    if sheet is None:
         return []
-    spreads = [f"cut ±{float(tol.get('cut_m', 0.0)) * 1e3:g} mm"]
-    for key, label in (("z0_rel", "Z0"), ("vf_rel", "velocity factor"), ("parts_rel", "lumped values")):
-        val = tol.get(key)
-        spreads.append(f"{label} ±{float(val) * 100:g} %" if val is not None else f"{label}: the cable's own tolerance")
-    lines = ["## Robustness of the best design", "",
-             f"Of {rob['samples']} simulated builds ({', '.join(spreads)}; uniform spreads), "
-             f"**{100.0 * float(rob['yield_frac']):.0f} %** meet the mask. Margin: median "
-             f"{float(rob['margin_p50_db']):+.2f} dB, 5th percentile {float(rob['margin_p5_db']):+.2f} dB, "
-             f"worst {float(rob['margin_min_db']):+.2f} dB. A low yield says: trim the open stubs while "
-             "measuring.", ""]
-    rows = []
-    for sens in rob.get("sensitivities", []):
-        rows.append([str(sens["index"] + 1), _num(sens.get("db_per_mm"), "+.3f"), _num(sens.get("db_per_pct_vf"), "+.3f"),
-                     _num(sens.get("db_per_pct_z0"), "+.3f"), _num(sens.get("db_per_pct_value"), "+.3f")])
-    lines += _table(["#", "margin dB per mm longer", "per % VF", "per % Z0", "per % value"], rows, "rrrrr")
+    lines = [f"## Build sheet of the best design (rank {sheet.design_rank})", "",
+             f"Pieces from the load outwards; electrical lengths at {mhz(doc.reference_hz)}. {md(sheet.allowances)}", ""]
+    if sheet.pieces:
+        lines += table(BUILD_HEAD, _cells(build_cells(sheet)), "llllllrr")
+    else:
+        lines.append("No lines or stubs to cut.")
+    lines += ["", "Assembly, from the load to the source:", ""]
+    lines += [f"{k}. {md_block(step)}" for k, step in enumerate(sheet.assembly, start=1)]
     return [*lines, ""]
 
 
-def summary_markdown(doc: Mapping) -> str:
-    """The readable report of one study as Markdown.
+def _robustness_markdown(d: DesignDoc, doc: SummaryDoc) -> list[str]:
+    """The yield and sensitivity section for the best design (empty without a Monte Carlo)."""
+    rob, tol = d.robustness, doc.tolerance
+    if rob is None:
+        return []
+    spreads = [f"cut ±{tol.cut_m * 1e3:g} mm"]
+    for val, label in ((tol.z0_rel, "Z0"), (tol.vf_rel, "velocity factor"), (tol.parts_rel, "lumped values")):
+        spreads.append(f"{label} ±{val * 100:g} %" if val is not None else f"{label}: the cable's own tolerance")
+    lines = ["## Robustness of the best design", "",
+             f"Of {rob.samples} simulated builds ({', '.join(spreads)}; uniform spreads), "
+             f"**{100.0 * rob.yield_frac:.0f} %** meet the mask. Margin: median {rob.margin_p50_db:+.2f} dB, "
+             f"5th percentile {rob.margin_p5_db:+.2f} dB, worst {rob.margin_min_db:+.2f} dB. A low yield says: "
+             "trim the open stubs while measuring.", ""]
+    rows = [[str(s.index + 1), num(s.db_per_mm, "+.3f"), num(s.db_per_pct_vf, "+.3f"), num(s.db_per_pct_z0, "+.3f"),
+             num(s.db_per_pct_value, "+.3f")] for s in rob.sensitivities]
+    lines += table(["#", "margin dB per mm longer", "per % VF", "per % Z0", "per % value"], rows, "rrrrr")
+    return [*lines, ""]
 
-    Expected keys of ``doc`` (units in the names; alternative names in brackets are accepted):
 
-    - ``name`` [``study``] (str), ``description`` (str, optional)
-    - ``z_sys_ohm`` [``system_ohm``] (float): system impedance; ``load`` (str or dict; else
-      ``inputs.load`` is shown); ``f_ref_hz`` [``reference_hz``] (float, optional)
-    - ``mask`` (list of dict): ``f_lo_hz`` [``from``], ``f_hi_hz`` [``to``] (Hz, or text such as
-      ``'420MHz'``), ``min_rl_db`` [``return_loss``], optional ``max_loss_db`` [``max_loss``]
-    - ``designs`` (list of dict, best first), as made by :func:`design_summary`: ``rank``,
-      ``margin_db``, ``worst_rl_db`` [``worst_return_loss_db``], ``worst_freq_hz``,
-      ``length_wl`` [``total_length_wl``], ``elements`` (``ElementReport.as_dict()``, load outwards)
-    - ``search`` (dict, optional): ``trials`` [``trials_complete``], ``evaluations``,
-      ``elapsed_s``, ``stopped_early``, ``seeds``
-    - ``seeds`` (list, optional; else ``search.seeds``): seeds used, shown as text
-    - ``warnings`` (list of str, optional)
-    - ``pareto`` (list, optional): when non-empty, the Pareto plot is linked
-    - ``plots`` (dict title -> relative path, optional): replaces the default plot links
-    """
-    lines: list[str] = [f"# Matching study: {_get(doc, 'name', 'study', default='unnamed')}", ""]
-    if doc.get("description"):
-        lines += [str(doc["description"]).strip(), ""]
-    designs = list(doc.get("designs") or [])
-    mask = list(doc.get("mask") or [])
-    reqs = [float(r) for r in (_get(s, "min_rl_db", "return_loss") for s in mask) if r is not None]
-    strictest = max(reqs, default=None)
-    if designs:
-        best = designs[0]
-        margin = float(best["margin_db"])
-        verdict = "PASS" if margin >= 0.0 else "FAIL"
-        clause = (f"meets the mask with {margin:.2f} dB to spare" if margin >= 0.0
-                  else f"misses the mask by {-margin:.2f} dB")
-        lines += [
-            f"**Verdict: {verdict}.** The best design {clause} (margin {margin:+.2f} dB). Its worst return "
-            f"loss is {float(_get(best, 'worst_rl_db', 'worst_return_loss_db')):.2f} dB at "
-            f"{_mhz(float(best['worst_freq_hz']))}, with "
-            f"{float(_get(best, 'length_wl', 'total_length_wl')):.3f} λ of line in total.",
-            "",
-        ]
+def _ratings_markdown(d: DesignDoc) -> list[str]:
+    if d.power is None:
+        return []
+    lines = [f"## Ratings at {d.power.drive_w:g} W available (best design)", ""]
+    if d.power.within:
+        lines.append("Within every cable and connector rating in force (the cut list gives each section's figures).")
     else:
-        lines += ["**Verdict: FAIL.** The search produced no design.", ""]
+        lines += [f"- **Over rating:** {md(line)}" for line in d.power.over_rating]
+    return [*lines, ""]
 
-    lines += ["## Problem", ""]
-    lines.append(f"- System impedance: {float(_get(doc, 'z_sys_ohm', 'system_ohm')):g} Ω")
-    load = _get(doc, "load", default=(doc.get("inputs") or {}).get("load"))
-    lines.append(f"- Load: {_describe_load(load)}")
-    f_ref = _get(doc, "f_ref_hz", "reference_hz")
-    if f_ref:
-        lines.append(f"- Electrical lengths at {_mhz(float(f_ref))}")
-    if strictest is not None:
-        lines.append(f"- Strictest requirement: {strictest:g} dB return loss "
-                     f"(|Γ| ≤ {10 ** (-strictest / 20):.3f}, VSWR ≤ {_vswr(strictest):.2f})")
-    lines.append("")
-    if mask:
-        lines += ["Mask:", ""]
-        lines += _table(["from", "to", "min. return loss (dB)", "max. network loss (dB)"], _mask_rows(mask), "rrrr")
-        lines.append("")
 
-    if designs:
-        lines += ["## Ranked designs", ""]
-        rows = []
-        for d in designs:
-            els = ", ".join(_short_element(e) for e in d.get("elements", []))
-            rows.append([str(d["rank"]), f"{float(d['margin_db']):+.2f}",
-                         f"{float(_get(d, 'worst_rl_db', 'worst_return_loss_db')):.2f}",
-                         _mhz(float(d["worst_freq_hz"])), f"{float(_get(d, 'length_wl', 'total_length_wl')):.3f}",
-                         els])
-        lines += _table(["rank", "margin (dB)", "worst return loss (dB)", "at", "total length (λ)",
-                         "elements (load outwards)"], rows, "rrrrrl")
-        lines.append("")
-        lines += [f"## Best design (rank {designs[0]['rank']}), from the load outwards", ""]
-        rows = []
-        for e in designs[0].get("elements", []):
-            mm = e.get("physical_m")
-            rows.append([
-                str(e["index"] + 1), _element_name(e), e.get("medium") or "–", _num(e.get("z0_ohm"), ".4g"),
-                _num(e.get("electrical_deg"), ".2f"), _num(e.get("wavelengths"), ".4f"),
-                "–" if mm is None else f"{mm * 1e3:.1f}", _element_value(e),
-            ])
-        lines += _table(["#", "element", "cable", "Z0 (Ω)", "length (°)", "length (λ)", "cable to cut (mm)",
-                         "value"], rows, "rllrrrrr")
-        lines += ["", "Electrical lengths include connector and adapter allowances; the cable to cut "
-                  "does not.", ""]
-        lines += _robustness_markdown(designs[0].get("robustness"), doc.get("tolerance") or {})
+def summary_markdown(doc: SummaryDoc) -> str:
+    """The readable report of one study as Markdown; every text that came from the user is escaped."""
+    lines: list[str] = [f"# Matching study: {md(doc.study)}", ""]
+    if doc.description:
+        lines += [md_block(doc.description), ""]
+    lines += [f"**Verdict:** {md(doc.verdict_line)}", ""]
+    if doc.invented:
+        lines += ["*The study says its data is invented: these results are not about a measured device.*", ""]
 
-    plots = doc.get("plots")
-    if plots is None:
-        plots = dict(list(DEFAULT_PLOTS.items())[:2]) if designs else {}
-        if doc.get("pareto"):
-            plots.update(list(DEFAULT_PLOTS.items())[2:])
+    lines += ["## Problem", "", f"- System impedance: {doc.system_ohm:g} Ω", f"- Load: {md(doc.load.source)}",
+              f"- Electrical lengths at {mhz(doc.reference_hz)}", f"- Designs ranked by: {md(doc.ranked_by)}"
+              + (", within the ratings first" if doc.drive_w is not None else "")]
+    if doc.drive_w is not None:
+        lines.append(f"- Drive: {doc.drive_w:g} W available from the source")
+    lines += ["", "Mask:", "", *table(MASK_HEAD, mask_cells(doc.mask), "rrrrr"), ""]
+
+    lines += ["## The load alone (no network)", "", *table(LOAD_HEAD, load_cells(doc.load), "lrrrr"), "",
+              load_sentence(doc.load), ""]
+
+    if doc.designs:
+        lines += ["## Ranked designs", "", *table(DESIGN_HEAD, _cells([design_cells(d) for d in doc.designs]),
+                                                  "llrrrrrl"), ""]
+        lines += build_markdown(doc)
+        lines += _ratings_markdown(doc.designs[0])
+        lines += _robustness_markdown(doc.designs[0], doc)
+
+    plots = dict(list(DEFAULT_PLOTS.items())[:2]) if doc.designs else {}
+    if doc.pareto:
+        plots.update(list(DEFAULT_PLOTS.items())[2:])
     links = [f"- [{title}]({path})" for title, path in plots.items()]
-    if designs:
-        links += [f"- [{title}]({path})" for title, path in RESULT_FILES.items()]
+    if doc.designs:
+        links += [f"- [{title}]({path})" for title, path in RESULT_FILES.items()
+                  if path != "cut_list.md" or doc.build is not None]
     if links:
         lines += ["## Plots and files", "", *links, ""]
 
-    search = doc.get("search") or {}
-    seeds = list(_get(doc, "seeds", default=search.get("seeds")) or [])
-    if search or seeds:
-        lines += ["## Search", ""]
-        trials = _get(search, "trials", "trials_complete")
-        if trials is not None:
-            lines.append(f"- Trials: {trials}")
-        if "evaluations" in search:
-            lines.append(f"- Network evaluations: {search['evaluations']}")
-        if "elapsed_s" in search:
-            lines.append(f"- Elapsed: {float(search['elapsed_s']):.1f} s")
-        if "trial_time_s" in search:
-            lines.append(f"- Time in trials, all runs: {float(search['trial_time_s']):.1f} s")
-        if search.get("stopped_early"):
-            lines.append("- Stopped early: the target margin was reached")
-        if seeds:
-            lines.append(f"- Seeds: {', '.join(str(s) for s in seeds)}")
-        lines.append("")
-
-    warnings = list(doc.get("warnings") or [])
-    if warnings:
-        lines += ["## Warnings", ""]
-        lines += [f"- {w}" for w in warnings]
-        lines.append("")
-
-    lines += ["## Cautions", ""]
-    lines += [f"- {c}" for c in CAUTIONS]
+    s = doc.search
+    lines += ["## Search", "", f"- Trials: {s.trials_complete}", f"- Network evaluations: {s.evaluations}",
+              f"- Elapsed: {s.elapsed_s:.1f} s", f"- Time in trials, all runs: {s.trial_time_s:.1f} s"]
+    if s.stopped_early:
+        lines.append("- Stopped early: the target margin was reached")
+    if s.seeds:
+        lines.append(f"- Seeds: {md(', '.join(s.seeds))}")
     lines.append("")
+
+    if doc.warnings:
+        lines += ["## Warnings", "", *[f"- {md_block(w)}" for w in doc.warnings], ""]
+    lines += ["## Cautions", "", *[f"- {c}" for c in CAUTIONS], ""]
     return "\n".join(lines)
-
-
-def _vswr(rl_db: float) -> float:
-    rho = 10.0 ** (-rl_db / 20.0)
-    return (1.0 + rho) / (1.0 - rho) if rho < 1.0 else math.inf
-
-
-def _short_element(e: Mapping) -> str:
-    if e.get("wavelengths") is not None:
-        return f"{_element_name(e)} {float(e['wavelengths']):.3f} λ"
-    return f"{_element_name(e)} {_element_value(e)}"
-
-
-def write_summary_markdown(doc: Mapping, path: str | os.PathLike) -> Path:
-    """Write :func:`summary_markdown` of ``doc`` atomically."""
-    return write_text_atomic(path, summary_markdown(doc))

@@ -258,8 +258,8 @@ class Batch:
         outcome = replace(outcome, elapsed_s=elapsed)
         _, doc = write_results(study, outcome, self.out_root)
         entry.status = "done"
-        entry.verdict = doc["verdict"]
-        entry.best_margin_db = doc["best_margin_db"]
+        entry.verdict = doc.verdict
+        entry.best_margin_db = doc.best_margin_db
         entry.trials_complete = outcome.trials_complete
         entry.elapsed_s = elapsed
 

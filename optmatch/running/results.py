@@ -1,5 +1,11 @@
 """The results folder of one study: ``results/<study>/`` with summary.json, designs.csv, plots,
-Touchstone files and summary.md.
+Touchstone files, the cut list and summary.md.
+
+The summary document (:class:`~optmatch.outputs.document.SummaryDoc`) is built here once, with one
+``performance()`` call per design, and every file is written from it.  With a drive power, the
+designs are ranked within their ratings first: every distinct design the search kept is checked
+(in rank order, until enough within ratings are found) and a design over a rating ranks below
+every design within them.
 
 Every file is written atomically (temporary file, then rename); ``summary.json`` is written last
 and lists the SHA-256 of every other file, so a reader can tell a consistent set.
@@ -8,24 +14,45 @@ and lists the SHA-256 of every other file, so a reader can tell a consistent set
 from __future__ import annotations
 
 import hashlib
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 
 from optmatch import __version__
-from optmatch.domain.design import Design, describe, performance
+from optmatch.domain.design import Design, Performance, bare_load, describe, performance
 from optmatch.domain.tolerance import monte_carlo
 from optmatch.io.atomic import write_json_atomic, write_text_atomic
 from optmatch.io.paths import child_path
 from optmatch.outputs.cutlist import cut_list_csv, cut_list_markdown
+from optmatch.outputs.document import (
+    FAIL,
+    FAIL_RATING,
+    PASS,
+    Choice,
+    DesignDoc,
+    LoadPoint,
+    LoadView,
+    MaskSegment,
+    ParetoPoint,
+    PowerCheck,
+    SearchDoc,
+    SummaryDoc,
+    to_json,
+    vswr_of_rl,
+)
 from optmatch.outputs.network_export import export_touchstone
-from optmatch.outputs.plots import plot_pareto, plot_return_loss, plot_smith
+from optmatch.outputs.plots import Caption, plot_pareto, plot_return_loss, plot_smith
 from optmatch.outputs.tables import design_rows, summary_markdown, write_designs_csv
-from optmatch.running.build import build_view
+from optmatch.running.build import build_sheet, power_check, rating_warnings, stock_warnings
 from optmatch.running.search import SearchOutcome
 from optmatch.studyfile.loader import Study
 
 PLOTTED_DESIGNS = 3
+INVENTED = re.compile(r"\binvented\b", re.IGNORECASE)
+TOUCHSTONE_HEAD_BYTES = 65536  # the header comments are read from the start of the file only
 
 
 def results_dir(study: Study, out_root: Path) -> Path:
@@ -33,65 +60,187 @@ def results_dir(study: Study, out_root: Path) -> Path:
     return child_path(out_root, study.problem.name)
 
 
-def _mask_doc(study: Study) -> list[dict]:
-    segs = study.raw.get("mask", {}).get("segments", [])
-    return [dict(s) for s in segs]
+# ---------------------------------------------------------------- the study's own facts
 
 
-def design_doc(study: Study, design: Design, rank: int) -> dict:
-    """Everything about one design, JSON-ready."""
-    perf = performance(study.problem, design)
-    elements = [e.as_dict() for e in describe(study.problem, design)]
-    return {
-        "rank": rank,
-        "margin_db": design.margin_db,
-        "passes": design.margin_db >= 0.0,
-        "worst_return_loss_db": perf.worst_rl_db,
-        "worst_freq_hz": float(perf.freq[perf.worst_index]),
-        "max_network_loss_db": float(np.nanmax(perf.network_loss_db)),
-        "total_length_wl": design.length_wl,
-        "trial": design.trial,
-        "choice": {"medium": list(design.choice.medium), "short": list(design.choice.short)},
-        "u": list(design.u),
-        "elements": elements,
-        "robustness": monte_carlo(study.problem, design, study.spread).as_dict(),
-    }
+def data_is_invented(study: Study) -> bool:
+    """Whether the study says its data is invented: its description contains the word ``invented``,
+    or a comment line (``!``) of its Touchstone load file does."""
+    if INVENTED.search(study.description or ""):
+        return True
+    load = study.raw.get("load")
+    name = load.get("touchstone") if isinstance(load, Mapping) else None
+    if not isinstance(name, str):
+        return False
+    path = Path(name) if Path(name).is_absolute() else study.path.parent / name
+    try:
+        with path.open("rb") as fh:
+            head = fh.read(TOUCHSTONE_HEAD_BYTES).decode("utf-8", errors="replace")
+    except OSError:
+        return False
+    return any(INVENTED.search(line) for line in head.splitlines() if line.lstrip().startswith("!"))
 
 
-def summary_document(study: Study, outcome: SearchOutcome, warnings: list[str]) -> dict:
-    """The content of summary.json (without the file hashes)."""
-    designs = [design_doc(study, d, k + 1) for k, d in enumerate(outcome.designs)]
-    best = designs[0] if designs else None
-    build, build_warnings = build_view(study, outcome.designs[0]) if outcome.designs else (None, [])
-    warnings = list(warnings) + build_warnings
-    return {
-        "study": study.problem.name,
-        "description": study.description,
-        "file": str(study.path),
-        "inputs_digest": study.digest,
-        "optmatch_version": __version__,
-        "inputs": study.raw,
-        "system_ohm": study.problem.z_sys,
-        "reference_hz": study.problem.f_ref,
-        "mask": _mask_doc(study),
-        "verdict": "PASS" if best and best["passes"] else "FAIL",
-        "best_margin_db": best["margin_db"] if best else None,
-        "designs": designs,
-        "pareto": [{"margin_db": d.margin_db, "total_length_wl": d.length_wl, "trial": d.trial}
-                   for d in outcome.pareto],
-        "search": {
-            "trials_complete": outcome.trials_complete,
-            "evaluations": outcome.evaluations,
-            "elapsed_s": outcome.elapsed_s,
-            "trial_time_s": outcome.trial_time_s,
-            "stopped_early": outcome.stopped_early,
-            "seeds": [s.origin for s in outcome.seeds],
-            "settings": dict(study.search.__dict__),
-        },
-        "warnings": warnings,
-        "tolerance": dict(study.spread.__dict__),
-        "cut_list": build,
-    }
+def _load_source(study: Study) -> str:
+    load = study.raw.get("load")
+    if isinstance(load, Mapping):
+        return "; ".join(f"{k}: {v}" for k, v in load.items())
+    return "not described"
+
+
+def mask_doc(study: Study) -> tuple[MaskSegment, ...]:
+    """The mask as resolved (Hz, dB), with each requirement's VSWR."""
+    return tuple(MaskSegment(f_lo_hz=s.f_lo, f_hi_hz=s.f_hi, min_rl_db=s.min_rl_db, max_vswr=vswr_of_rl(s.min_rl_db),
+                             max_loss_db=s.max_loss_db, points=1 if s.f_lo == s.f_hi else int(s.points))
+                 for s in study.problem.grid.segments)
+
+
+def load_view(study: Study, alone: Performance) -> LoadView:
+    """The bare load at the band's low edge, centre and high edge, and its margin against the mask."""
+    freq = alone.freq
+    centre = int(np.argmin(np.abs(freq - study.problem.grid.centre)))
+    points = []
+    for label, k in (("low edge", 0), ("centre", centre), ("high edge", freq.size - 1)):
+        z = complex(study.problem.zload[k])
+        rl = float(alone.return_loss_db[k])
+        points.append(LoadPoint(label=label, freq_hz=float(freq[k]), r_ohm=z.real, x_ohm=z.imag, return_loss_db=rl,
+                                vswr=vswr_of_rl(rl)))
+    return LoadView(source=_load_source(study), points=tuple(points), unmatched_margin_db=alone.margin_db,
+                    worst_return_loss_db=alone.worst_rl_db, worst_freq_hz=float(freq[alone.worst_index]),
+                    meets_mask=alone.margin_db >= 0.0)
+
+
+# ---------------------------------------------------------------- ranking within ratings
+
+
+@dataclass(frozen=True)
+class Rated:
+    """Designs in their final order, each with its power check (None without a drive power), and the
+    best design that meets the mask but is over a rating (if the ratings pushed any down)."""
+
+    designs: list[tuple[Design, PowerCheck | None]]
+    over_rating_passing: int
+    best_over: tuple[Design, PowerCheck] | None
+
+
+def rank_within_ratings(study: Study, candidates: Sequence[Design], keep: int) -> Rated:
+    """The ``keep`` designs to report: within every rating first (in the search's order), then the
+    rest.  Candidates are checked in order until ``keep`` within ratings are found."""
+    if study.drive_w is None:
+        return Rated([(d, None) for d in candidates[:keep]], 0, None)
+    within: list[tuple[Design, PowerCheck | None]] = []
+    over: list[tuple[Design, PowerCheck]] = []
+    for d in candidates:
+        if len(within) >= keep:
+            break
+        pc = power_check(study, d)
+        assert pc is not None
+        (within if pc.within else over).append((d, pc))
+    passing_over = [(d, pc) for d, pc in over if d.margin_db >= 0.0]
+    ordered = within + list(over)
+    return Rated(ordered[:keep], len(passing_over), passing_over[0] if passing_over else None)
+
+
+def verdict_of(margin_db: float, power: PowerCheck | None) -> str:
+    """PASS, FAIL (misses the mask) or FAIL rating (meets the mask, over a rating)."""
+    if not margin_db >= 0.0:
+        return FAIL
+    if power is not None and not power.within:
+        return FAIL_RATING
+    return PASS
+
+
+def design_doc(study: Study, design: Design, perf: Performance, rank: int, power: PowerCheck | None) -> DesignDoc:
+    """Everything about one design, from its one :func:`performance` evaluation."""
+    return DesignDoc(
+        rank=rank, verdict=verdict_of(design.margin_db, power), margin_db=design.margin_db,
+        worst_return_loss_db=perf.worst_rl_db, worst_freq_hz=float(perf.freq[perf.worst_index]),
+        max_network_loss_db=float(np.nanmax(perf.network_loss_db)), total_length_wl=design.length_wl,
+        trial=design.trial, choice=Choice(tuple(design.choice.medium), tuple(design.choice.short)),
+        u=tuple(float(x) for x in design.u), elements=tuple(describe(study.problem, design)),
+        robustness=monte_carlo(study.problem, design, study.spread), power=power,
+    )
+
+
+def _mhz(hz: float) -> str:
+    return f"{hz / 1e6:.3f} MHz"
+
+
+def verdict_line(verdict: str, designs: Sequence[DesignDoc], load: LoadView, rated: Rated,
+                 drive_w: float | None) -> str:
+    """The study's verdict and its reason, in one line."""
+    if load.meets_mask:
+        return (f"PASS: no network needed: the bare load meets the mask by {load.unmatched_margin_db:+.2f} dB "
+                f"(worst return loss {load.worst_return_loss_db:.2f} dB at {_mhz(load.worst_freq_hz)}); "
+                "the designs found are listed all the same")
+    if not designs:
+        return "FAIL: the search produced no design"
+    best = designs[0]
+    if verdict == PASS:
+        ratings = f", within every rating at {drive_w:g} W" if drive_w is not None else ""
+        return f"PASS: the best design meets the mask by {best.margin_db:+.2f} dB{ratings}"
+    if verdict == FAIL_RATING:
+        assert best.power is not None
+        more = f" (and {len(best.power.over_rating) - 1} more)" if len(best.power.over_rating) > 1 else ""
+        return (f"FAIL rating: no design within the ratings at {drive_w:g} W meets the mask; the best design meets it "
+                f"by {best.margin_db:+.2f} dB but {best.power.over_rating[0]}{more}")
+    line = (f"FAIL: the best design misses the mask by {-best.margin_db:.2f} dB (worst return loss "
+            f"{best.worst_return_loss_db:.2f} dB at {_mhz(best.worst_freq_hz)})")
+    if rated.best_over is not None:
+        d, pc = rated.best_over
+        line += (f"; {rated.over_rating_passing} design(s) that meet it are over a rating at {drive_w:g} W "
+                 f"(the best, {d.margin_db:+.2f} dB: {pc.over_rating[0]})")
+    return line
+
+
+# ---------------------------------------------------------------- the document
+
+
+@dataclass(frozen=True)
+class Built:
+    """The summary document with the band figures it was made from (for the plots)."""
+
+    doc: SummaryDoc
+    ranked: list[tuple[Design, Performance]]
+    load: Performance
+
+
+def build_summary(study: Study, outcome: SearchOutcome, warnings: Sequence[str] = ()) -> Built:
+    """Rank, evaluate each design once, and assemble the summary document."""
+    problem = study.problem
+    candidates = outcome.distinct or outcome.designs
+    rated = rank_within_ratings(study, candidates, study.search.keep)
+    ranked = [(d, performance(problem, d), pc) for d, pc in rated.designs]
+    designs = tuple(design_doc(study, d, perf, k + 1, pc) for k, (d, perf, pc) in enumerate(ranked))
+    alone = bare_load(problem)
+    load = load_view(study, alone)
+    verdict = PASS if load.meets_mask else (designs[0].verdict if designs else FAIL)
+    sheet = None
+    notes = list(warnings)
+    if designs:
+        best, perf, power = ranked[0]
+        sheet = build_sheet(study, best, designs[0].elements, perf)
+        notes += stock_warnings(sheet) + rating_warnings(power)
+    doc = SummaryDoc(
+        study=problem.name, description=study.description, file=str(study.path), inputs_digest=study.digest,
+        optmatch_version=__version__, invented=data_is_invented(study), inputs=study.raw,
+        system_ohm=problem.z_sys, reference_hz=problem.f_ref, mask=mask_doc(study), load=load,
+        verdict=verdict, verdict_line=verdict_line(verdict, designs, load, rated, study.drive_w),
+        no_network_needed=load.meets_mask, ranked_by=study.search.objective,
+        best_margin_db=designs[0].margin_db if designs else None, designs=designs,
+        pareto=tuple(ParetoPoint(d.margin_db, d.length_wl, d.trial) for d in outcome.pareto),
+        search=SearchDoc(trials_complete=outcome.trials_complete, evaluations=outcome.evaluations,
+                         elapsed_s=outcome.elapsed_s, trial_time_s=outcome.trial_time_s,
+                         stopped_early=outcome.stopped_early, seeds=tuple(s.origin for s in outcome.seeds),
+                         settings=dict(study.search.__dict__)),
+        tolerance=study.spread, drive_w=study.drive_w, warnings=tuple(notes), build=sheet,
+    )
+    return Built(doc, [(d, perf) for d, perf, _ in ranked], alone)
+
+
+def summary_document(study: Study, outcome: SearchOutcome, warnings: Sequence[str] = ()) -> SummaryDoc:
+    """The summary document of a finished search (see :func:`build_summary`)."""
+    return build_summary(study, outcome, warnings).doc
 
 
 def _sha256(path: Path) -> str:
@@ -99,30 +248,30 @@ def _sha256(path: Path) -> str:
 
 
 def write_results(study: Study, outcome: SearchOutcome, out_root: Path,
-                  warnings: list[str] | None = None) -> tuple[Path, dict]:
+                  warnings: Sequence[str] | None = None) -> tuple[Path, SummaryDoc]:
     """Write the whole results folder; returns its path and the summary document written."""
-    warnings = list(warnings or [])
     folder = results_dir(study, out_root)
     folder.mkdir(parents=True, exist_ok=True)
     problem = study.problem
-    doc = summary_document(study, outcome, warnings)
+    built = build_summary(study, outcome, warnings or ())
+    doc = built.doc
+    caption = Caption(doc.study, doc.invented)
     files: list[Path] = []
-    if outcome.designs:
-        perfs = [(f"#{k + 1}", performance(problem, d)) for k, d in enumerate(outcome.designs[:PLOTTED_DESIGNS])]
+    if built.ranked:
+        perfs = [(f"#{k + 1}", perf) for k, (_, perf) in enumerate(built.ranked[:PLOTTED_DESIGNS])]
         files.append(plot_return_loss(perfs, problem.grid, folder / "return_loss.png",
-                                      segments=list(problem.grid.segments)))
+                                      segments=list(problem.grid.segments), load=built.load, caption=caption))
         files.append(plot_smith(perfs, folder / "smith.png", problem.z_sys,
-                                min_rl_db=float(problem.grid.min_rl_db.max())))
-        files += list(export_touchstone(problem, outcome.designs[0], folder))
+                                min_rl_db=float(problem.grid.min_rl_db.max()), load=built.load, caption=caption))
+        files += list(export_touchstone(problem, built.ranked[0][0], folder, invented=doc.invented))
     if outcome.pareto:
         front = [(d.margin_db, d.length_wl) for d in outcome.pareto]
-        files.append(plot_pareto(outcome.all_points, front, folder / "pareto.png"))
-    files.append(write_designs_csv(design_rows(problem, outcome.designs), folder / "designs.csv"))
-    if doc.get("cut_list"):
-        files.append(write_text_atomic(folder / "cut_list.md", cut_list_markdown(doc["cut_list"], problem.name,
-                                                                                 problem.f_ref)))
-        files.append(write_text_atomic(folder / "cut_list.csv", cut_list_csv(doc["cut_list"])))
+        files.append(plot_pareto(outcome.all_points, front, folder / "pareto.png", caption=caption))
+    files.append(write_designs_csv(design_rows(doc.designs), folder / "designs.csv"))
+    if doc.build is not None:
+        files.append(write_text_atomic(folder / "cut_list.md", cut_list_markdown(doc)))
+        files.append(write_text_atomic(folder / "cut_list.csv", cut_list_csv(doc.build)))
     files.append(write_text_atomic(folder / "summary.md", summary_markdown(doc)))
-    doc["files"] = {p.name: _sha256(p) for p in files}
-    write_json_atomic(folder / "summary.json", doc)
+    doc = replace(doc, files={p.name: _sha256(p) for p in files})
+    write_json_atomic(folder / "summary.json", to_json(doc))
     return folder, doc

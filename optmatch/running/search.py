@@ -14,7 +14,7 @@ import itertools
 import json
 import time
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import optuna
@@ -51,6 +51,7 @@ class SearchOutcome:
     trial_time_s: float       # all complete trials, this run and earlier ones (s)
     seeds: list[Seed]
     stopped_early: bool
+    distinct: list[Design] = field(default_factory=list)  # every distinct design found, ranked (designs: the first keep)
 
 
 BUDGET_KEYS = ("trials", "time", "keep", "target_margin")
@@ -273,4 +274,5 @@ def run_search(
         trial_time_s=sum((t.duration.total_seconds() for t in complete if t.duration is not None), 0.0),
         seeds=seeds,
         stopped_early=stopped["early"],
+        distinct=designs,
     )

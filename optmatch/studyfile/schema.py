@@ -260,11 +260,13 @@ class StockPieceModel(_Model):
 
 
 class AllowanceModel(_Model):
-    """Electrical length a connector pair, adapter or tee adds: ``length`` with its ``vf``, or ``delay``."""
+    """Electrical length a connector pair, adapter or tee adds: ``length`` with its ``vf``, or ``delay``;
+    optionally its peak RF voltage rating ``max_voltage`` (V peak, as in the cable catalog)."""
 
     length: PhysicalLength | None = None
     vf: VelocityFactor = 1.0
     delay: LengthValue | None = None
+    max_voltage: Annotated[float, Field(gt=0, allow_inf_nan=False)] | None = None
 
     @model_validator(mode="after")
     def _one_way(self) -> AllowanceModel:

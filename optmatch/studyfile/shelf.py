@@ -32,6 +32,7 @@ class ShelfContext:
 
     catalog: dict[str, Cable]
     allowances: dict[str, float] = field(default_factory=dict)
+    allowance_volts: dict[str, float] = field(default_factory=dict)  # peak V rating, where one is given
     shelf_stock: dict[str, list[tuple[float, int]]] = field(default_factory=dict)
     pool: dict[tuple[str, float], int] = field(default_factory=dict)
 
@@ -136,6 +137,8 @@ def shelf_context(shelf: ShelfModel | None, catalog: dict[str, Cable], add: Prob
         return ctx
     for name, a in (shelf.allowances or {}).items():
         ctx.allowances[name] = a.delay_s
+        if a.max_voltage is not None:
+            ctx.allowance_volts[name] = a.max_voltage
     for name, pieces in (shelf.stock or {}).items():
         full, _ = lookup_cable(name, catalog)
         if full is None:
@@ -158,6 +161,12 @@ def _allowance_delay(refs: list[str | AllowanceModel] | None, ctx: ShelfContext,
         else:
             total += a.delay_s
     return total
+
+
+def _allowance_volts(refs: list[str | AllowanceModel] | None, ctx: ShelfContext) -> float | None:
+    """The lowest peak-voltage rating among an element's allowances (V), or None where none gives one."""
+    volts = [ctx.allowance_volts.get(a) if isinstance(a, str) else a.max_voltage for a in refs or []]
+    return min((v for v in volts if v is not None), default=None)
 
 
 def _cables(names: str | list[str], ctx: ShelfContext, where: str, add: Problem) -> list[Cable] | None:
@@ -230,7 +239,7 @@ def shelf_element(kind: str, spec, lb: LengthBound | None, z_sys: float, ctx: Sh
     if allow_s is None:
         return None
     end = getattr(spec, "end", None)
-    common = {"end": end, "extra_delay": allow_s, "label": label}
+    common = {"end": end, "extra_delay": allow_s, "label": label, "max_voltage_v": _allowance_volts(spec.allowances, ctx)}
     if spec.microstrip is not None:
         ms = spec.microstrip
         try:
