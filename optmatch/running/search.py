@@ -34,6 +34,7 @@ PARETO_WEIGHT_MAX_DB_PER_WL = 20.0
 KEEP_PER_TRIAL = 3
 DISTINCT_U = 0.01  # designs closer than this (unit-cube max norm) are one design
 STOCK_SHORTAGE_DB = 100.0  # penalty per stock piece a trial's choice takes beyond the shelf
+EXACT_GRADIENTS = True  # polish with exact gradients, all picks at once (False: the older forward-difference polish)
 
 ProgressFn = Callable[[int, int, float | None], None]
 
@@ -124,8 +125,12 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
         def shortfall(u: np.ndarray) -> np.ndarray:
             return problem.shortfalls_db(u, choice) + (penalty * problem.length_wl(u, choice))[:, None]
 
+        def shortfall_grad(u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+            return problem.shortfalls_and_grad(u, choice, penalty)
+
         res = inner_search(score, shortfall, problem.network.dim, rng, seeds=init,
-                           population=settings.population, generations=settings.generations)
+                           population=settings.population, generations=settings.generations,
+                           shortfall_grad=shortfall_grad if EXACT_GRADIENTS else None)
         kept: list[dict] = []
         for u in res.u:
             if len(kept) >= KEEP_PER_TRIAL:
