@@ -83,6 +83,7 @@ class Case:
     theory: Callable[[Problem], Theory | None] = field(default=lambda problem: None)
     chebyshev: bool = False  # headline reports the gap to this case's theoretical figure
     dense: Callable[[Problem], Problem] | None = None  # the same problem on a dense grid, to check
+    best_known: bool = False  # compared with benchmarks/best_known.json (a long scipy run)
 
     def load(self, workdir: Path) -> Study:
         if self.study_file is not None:
@@ -168,6 +169,68 @@ search: {{trials: 10, seed: 5, population: 48, generations: 50}}
         theory=_rc_theory,
     ),
     Case(name="demo-whip", study_file="configs/demo_whip.yaml"),
+]
+
+# Multimodal cases of our own (invented loads), each searched at the default budget (no search
+# settings but the seed) and compared with the best-known margin of a long many-restart scipy run
+# (benchmarks/best_known.py, output in benchmarks/best_known.json).  Each has an exact Bode–Fano
+# ceiling (a plain R–C or R–L load).
+RC4_R, RC4_C, RC4_LO, RC4_HI = 150.0, 2.2e-12, 820e6, 980e6          # parallel R–C, 18 % band
+RL5_R, RL5_L, RL5_LO, RL5_HI = 12.0, 6e-9, 1.6e9, 2.0e9               # series R–L, 22 % band
+SC6_R, SC6_C, SC6_LO, SC6_HI = 30.0, 4e-12, 410e6, 510e6              # series R–C, 22 % band
+
+MULTIMODAL: list[Case] = [
+    Case(
+        name="RC-line-stub-line-stub",
+        study_text=f"""
+name: bench-rc-lsls
+load: {{parallel_rlc: {{r: {RC4_R:g}, c: {RC4_C * 1e12:g}pF}}}}
+mask: {{segments: [{{from: {RC4_LO / 1e6:g}MHz, to: {RC4_HI / 1e6:g}MHz, return_loss: 20, points: 41}}]}}
+network:
+  elements:
+    - line: {{length: {{min: 0deg, max: 180deg}}, z0: 50, vf: 0.66}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, z0: 50, vf: 0.66}}
+    - line: {{length: {{min: 5deg, max: 180deg}}, z0: 50, vf: 0.66}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, z0: 50, vf: 0.66}}
+search: {{seed: 21}}
+""",
+        best_known=True,
+    ),
+    Case(
+        name="RL-five-element-ladder",
+        study_text=f"""
+name: bench-rl-ladder5
+load: {{series_rlc: {{r: {RL5_R:g}, l: {RL5_L * 1e9:g}nH}}}}
+mask: {{segments: [{{from: {RL5_LO / 1e9:g}GHz, to: {RL5_HI / 1e9:g}GHz, return_loss: 10, points: 41}}]}}
+network:
+  elements:
+    - line: {{length: {{min: 0deg, max: 180deg}}, z0: 50, vf: 0.7}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, z0: 50, vf: 0.7}}
+    - line: {{length: {{min: 5deg, max: 180deg}}, z0: 35, vf: 0.7}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, z0: 50, vf: 0.7}}
+    - line: {{length: {{min: 5deg, max: 180deg}}, z0: 50, vf: 0.7}}
+search: {{seed: 22}}
+""",
+        best_known=True,
+    ),
+    Case(
+        name="seriesRC-six-element",
+        study_text=f"""
+name: bench-src-mixed6
+load: {{series_rlc: {{r: {SC6_R:g}, c: {SC6_C * 1e12:g}pF}}}}
+mask: {{segments: [{{from: {SC6_LO / 1e6:g}MHz, to: {SC6_HI / 1e6:g}MHz, return_loss: 15, points: 41}}]}}
+network:
+  elements:
+    - line: {{length: {{min: 0deg, max: 180deg}}, z0: 50, vf: 0.66}}
+    - series_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, z0: 50, vf: 0.66}}
+    - line: {{length: {{min: 5deg, max: 180deg}}, z0: 50, vf: 0.66}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, z0: 50, vf: 0.66}}
+    - line: {{length: 45deg, z0: 50, vf: 0.66}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, z0: 50, vf: 0.66}}
+search: {{seed: 23}}
+""",
+        best_known=True,
+    ),
 ]
 
 

@@ -70,6 +70,9 @@ def run_run(args: argparse.Namespace) -> int:
 
     optuna.logging.set_verbosity(optuna.logging.ERROR)  # an interrupted trial is not a traceback
     study = load_study(args.file)
+    feasibility = study.problem.feasibility()  # the ceiling, said before the search
+    if not (args.quiet or args.json) or not feasibility.feasible:
+        console(stderr=args.quiet or args.json).print(feasibility.statement())
     if args.quiet:
         folder, doc = run_study(study, args.out, args.storage, progress_fn=None)
     else:

@@ -10,6 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from optmatch.domain.feasibility import Feasibility, ceiling
 from optmatch.domain.mask import Grid, margin_db, margin_terms
 from optmatch.domain.network import Choice, NetworkSpec
 from optmatch.engine import Response, evaluate, evaluate_reduced
@@ -140,6 +141,10 @@ class Problem:
             stacked[(j + 1) * n:(j + 2) * n, j] += 1j * COMPLEX_STEP
         total = self.network.total_delay(stacked, choice) * self.f_ref
         return total[:n].real, (total[n:].imag / COMPLEX_STEP).reshape(d, n).T
+
+    def feasibility(self) -> Feasibility:
+        """The Bode–Fano ceiling of this load against this mask (see :mod:`optmatch.domain.feasibility`)."""
+        return ceiling(self.zload, self.grid, self.z_sys)
 
     def length_wl(self, u: np.ndarray, choice: Choice) -> np.ndarray:
         """Total line and stub length in wavelengths at ``f_ref`` per design."""

@@ -73,6 +73,7 @@ def summary_document(study: Study, outcome: SearchOutcome, warnings: list[str]) 
         "system_ohm": study.problem.z_sys,
         "reference_hz": study.problem.f_ref,
         "mask": _mask_doc(study),
+        "feasibility": study.problem.feasibility().as_dict(),
         "verdict": "PASS" if best and best["passes"] else "FAIL",
         "best_margin_db": best["margin_db"] if best else None,
         "designs": designs,
