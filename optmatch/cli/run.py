@@ -44,7 +44,7 @@ def print_designs(doc: dict) -> None:
     """Closing table of the best designs."""
     out = console()
     tab = table("rank", "verdict", "elements (load outwards)", "margin dB", "worst RL dB", "at MHz", "length λ",
-                "yield", title=f"{doc['study']}: best designs")
+                "yield", title=f"{doc['study']}: best designs, ranked by {doc.get('ranked_by', 'margin')}")
     for d in doc["designs"]:
         parts = []
         for e in d["elements"]:

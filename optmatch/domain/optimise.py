@@ -40,10 +40,14 @@ def population_search(
     seeds: np.ndarray | None = None,
     population: int = 64,
     generations: int = 60,
+    stall: int | None = None,
 ) -> InnerResult:
     """Differential evolution (current-to-pbest/1/bin with adaptive F and CR, after JADE).
 
-    ``seeds`` (k, dim) enter the first generation; the rest is a Latin hypercube sample.
+    ``seeds`` (k, dim) enter the first generation; the rest is a Latin hypercube sample.  With
+    ``stall``, the search ends early once the population has settled in one basin: the best score
+    has gained less than :data:`STALL_GAIN` over that many generations and every coordinate spans
+    less than :data:`STALL_SPREAD`.
     """
     pop_n = max(population, 8)
     # Latin hypercube initial sample
@@ -55,7 +59,11 @@ def population_search(
     fit = score(pop)
     evals = pop_n
     mu_f, mu_cr = 0.5, 0.7
+    history = [float(np.max(fit))]
     for _ in range(generations):
+        if (stall is not None and len(history) > stall and history[-1] - history[-1 - stall] < STALL_GAIN
+                and float(np.max(np.ptp(pop, axis=0))) < STALL_SPREAD):
+            break
         order = np.argsort(-fit)
         p_top = max(2, int(0.15 * pop_n))
         pbest = pop[order[rng.integers(0, p_top, pop_n)]]
@@ -77,6 +85,7 @@ def population_search(
             mu_cr = 0.9 * mu_cr + 0.1 * float(np.mean(good_cr))
         pop = np.where(better[:, None], trial, pop)
         fit = np.where(better, trial_fit, fit)
+        history.append(float(np.max(fit)))
     order = np.argsort(-fit)
     return InnerResult(u=pop[order], score=fit[order], evaluations=evals)
 
@@ -133,6 +142,12 @@ def minimax_polish(
 
 
 ShortfallGrad = Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]]
+STALL_GAIN = 1e-3  # a population gaining less than this over STALL_GENERATIONS has settled
+STALL_GENERATIONS = 10
+STALL_SPREAD = 0.05  # ... and whose points all lie within this of each other (unit cube, per coordinate)
+RESTART_GROWTH = 1.5  # each restart's population is this much larger (up to RESTART_MAX times the first)
+RESTART_MAX = 3
+RESTART_MIN_GENERATIONS = 12  # a restart needs at least this many generations of budget left
 BASIN_APART = 0.05  # polish picks at least this far apart (unit-cube max norm): one per basin
 POLISH_WITHIN_DB = 1.0  # polish only picks within this of the best unpolished score
 POLISH_REACH = 0.1  # the exact polish stays within this of its start (unit cube): a local refinement
@@ -226,6 +241,51 @@ def minimax_polish_exact(
     return out, evals
 
 
+def _penalised(score: Objective, known: np.ndarray | None, radius: float, depth_db: float) -> Objective:
+    """``score`` less up to ``depth_db`` near each of the ``known`` points (none at ``radius``)."""
+    if known is None or not len(known):
+        return score
+    known = np.atleast_2d(known)
+
+    def penalised(u: np.ndarray) -> np.ndarray:
+        near = np.min(np.max(np.abs(u[:, None, :] - known[None, :, :]), axis=2), axis=1)
+        return score(u) - depth_db * np.clip(1.0 - near / radius, 0.0, 1.0)
+
+    return penalised
+
+
+def _restarted_search(score: Objective, dim: int, rng: np.random.Generator, seeds: np.ndarray | None,
+                      population: int, generations: int, avoid: np.ndarray | None, avoid_radius: float,
+                      avoid_db: float) -> InnerResult:
+    """Population searches within one budget of ``population`` × (``generations`` + 1) evaluations:
+    when a population settles (:data:`STALL_GENERATIONS`), its best joins the basins to avoid and a
+    larger population (:data:`RESTART_GROWTH`) starts afresh elsewhere.  Every population's points
+    are returned, ranked by the plain ``score``."""
+    budget = population * (generations + 1)
+    used = 0
+    size = population
+    found: list[np.ndarray] = []
+    pools: list[np.ndarray] = []
+    while True:
+        gens = budget // size - 1 if pools else generations
+        if pools and gens < RESTART_MIN_GENERATIONS:
+            break
+        known = [np.atleast_2d(avoid)] if avoid is not None and len(avoid) else []
+        known += [np.array(found)] if found else []
+        avoided = np.vstack(known) if known else None
+        res = population_search(_penalised(score, avoided, avoid_radius, avoid_db), dim, rng,
+                                seeds if not pools else None, size, max(gens, 0), stall=STALL_GENERATIONS)
+        used += res.evaluations
+        budget -= res.evaluations
+        pools.append(res.u)
+        found.append(res.u[0])
+        size = min(int(size * RESTART_GROWTH), RESTART_MAX * population)
+    allu = np.vstack(pools)
+    plain = score(allu)
+    order = np.argsort(-plain, kind="stable")
+    return InnerResult(u=allu[order], score=plain[order], evaluations=used + len(plain))
+
+
 def inner_search(
     score: Objective,
     shortfall: Callable[[np.ndarray], np.ndarray],
@@ -236,6 +296,9 @@ def inner_search(
     generations: int = 60,
     polish_top: int = 3,
     shortfall_grad: ShortfallGrad | None = None,
+    avoid: np.ndarray | None = None,
+    avoid_radius: float = 0.08,
+    avoid_db: float = 20.0,
 ) -> InnerResult:
     """Population search, then an exact minimax polish of the best ``polish_top`` distinct points;
     results best first.
@@ -243,11 +306,16 @@ def inner_search(
     With ``shortfall_grad`` (values and exact gradients of the per-point shortfalls), the picks are
     one per basin (:data:`BASIN_APART` apart, within :data:`POLISH_WITHIN_DB` of the best) and go to
     :func:`minimax_polish_exact`; without it, the older :func:`minimax_polish` by forward
-    differences polishes the best points 1e-3 apart (kept as the benchmark's reference)."""
+    differences polishes the best points 1e-3 apart (kept as the benchmark's reference).
+
+    ``avoid`` (k, dim): designs found before for the same choice; the population search's score
+    loses up to ``avoid_db`` near each (falling to nothing at ``avoid_radius``, max norm), so the
+    population settles in other basins.  Results are ranked by the plain ``score``.
+    """
     if dim == 0:
         u = np.zeros((1, 0))
         return InnerResult(u=u, score=score(u), evaluations=1)
-    res = population_search(score, dim, rng, seeds, population, generations)
+    res = _restarted_search(score, dim, rng, seeds, population, generations, avoid, avoid_radius, avoid_db)
     evals = res.evaluations
     picked: list[np.ndarray] = []
     apart = BASIN_APART if shortfall_grad is not None else 1e-3

@@ -76,6 +76,7 @@ def summary_document(study: Study, outcome: SearchOutcome, warnings: list[str]) 
         "feasibility": study.problem.feasibility().as_dict(),
         "verdict": "PASS" if best and best["passes"] else "FAIL",
         "best_margin_db": best["margin_db"] if best else None,
+        "ranked_by": outcome.ranked_by,
         "designs": designs,
         "pareto": [{"margin_db": d.margin_db, "total_length_wl": d.length_wl, "trial": d.trial}
                    for d in outcome.pareto],

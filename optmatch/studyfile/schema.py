@@ -653,7 +653,7 @@ class SearchModel(_Model):
     keep: Count = 5
     population: Annotated[int, Field(strict=True, ge=2)] = 64
     generations: Count = 60
-    objective: Literal["margin", "pareto"] = "margin"
+    objective: Literal["margin", "yield", "pareto"] = "margin"
 
 
 NAME_PATTERN = r"^[A-Za-z0-9_.-]+$"
