@@ -162,6 +162,11 @@ def _model_z(model: ModelName, r_ohm: float, x: float, omega: np.ndarray) -> np.
     return 1.0 / (1.0 / r_ohm + 1.0 / (1j * omega * x))  # parallel RL
 
 
+def model_impedance(model: ModelName, r_ohm: float, x: float, freq_hz: np.ndarray) -> np.ndarray:
+    """Impedance (Ω) of one of the four models with R and C (F) or L (H) ``x`` at ``freq_hz``."""
+    return _model_z(model, r_ohm, x, 2 * np.pi * np.asarray(freq_hz, dtype=float))
+
+
 def _gamma(z: np.ndarray, z_sys: float) -> np.ndarray:
     return (z - z_sys) / (z + z_sys)
 
