@@ -26,13 +26,6 @@ class InnerResult:
     evaluations: int
 
 
-def _reflect(x: np.ndarray) -> np.ndarray:
-    """Fold values back into [0, 1] (keeps the step length, unlike clipping)."""
-    x = np.abs(x)
-    x = np.where(x > 1.0, 2.0 - x, x)
-    return np.clip(x, 0.0, 1.0)
-
-
 def population_search(
     score: Objective,
     dim: int,
@@ -42,7 +35,11 @@ def population_search(
     generations: int = 60,
     stall: int | None = None,
 ) -> InnerResult:
-    """Differential evolution (current-to-pbest/1/bin with adaptive F and CR, after JADE).
+    """Differential evolution, best/1/bin (R. Storn and K. Price, 1997): each trial point is the best
+    point plus F·(x_r1 − x_r2), F drawn in [0.5, 1] every generation, crossed with its parent at
+    rate :data:`CROSSOVER`; a coordinate pushed outside [0, 1] is drawn afresh, uniformly, which
+    keeps the population exploring.  (This finds the narrow basins of multi-stub networks far more
+    often than an adaptive current-to-pbest variant did; see benchmarks/search.py.)
 
     ``seeds`` (k, dim) enter the first generation; the rest is a Latin hypercube sample.  With
     ``stall``, the search ends early once the population has settled in one basin: the best score
@@ -58,31 +55,24 @@ def population_search(
         pop[:k] = np.clip(seeds[:k], 0.0, 1.0)
     fit = score(pop)
     evals = pop_n
-    mu_f, mu_cr = 0.5, 0.7
     history = [float(np.max(fit))]
     for _ in range(generations):
         if (stall is not None and len(history) > stall and history[-1] - history[-1 - stall] < STALL_GAIN
                 and float(np.max(np.ptp(pop, axis=0))) < STALL_SPREAD):
             break
-        order = np.argsort(-fit)
-        p_top = max(2, int(0.15 * pop_n))
-        pbest = pop[order[rng.integers(0, p_top, pop_n)]]
-        f = np.clip(mu_f + 0.1 * rng.standard_cauchy(pop_n), 0.05, 1.0)[:, None]
-        cr = np.clip(rng.normal(mu_cr, 0.1, pop_n), 0.0, 1.0)[:, None]
+        best = pop[int(np.argmax(fit))]
+        f = rng.uniform(0.5, 1.0)
         r1 = rng.integers(0, pop_n, pop_n)
         r2 = rng.integers(0, pop_n, pop_n)
-        mutant = pop + f * (pbest - pop) + f * (pop[r1] - pop[r2])
-        mutant = _reflect(mutant)
-        cross = rng.random((pop_n, dim)) < cr
+        mutant = best + f * (pop[r1] - pop[r2])
+        outside = (mutant < 0.0) | (mutant > 1.0)
+        mutant = np.where(outside, rng.random(mutant.shape), mutant)
+        cross = rng.random((pop_n, dim)) < CROSSOVER
         cross[np.arange(pop_n), rng.integers(0, dim, pop_n)] = True
         trial = np.where(cross, mutant, pop)
         trial_fit = score(trial)
         evals += pop_n
         better = trial_fit >= fit
-        if np.any(better):
-            good_f, good_cr = f[better, 0], cr[better, 0]
-            mu_f = 0.9 * mu_f + 0.1 * float(np.sum(good_f**2) / max(np.sum(good_f), 1e-12))
-            mu_cr = 0.9 * mu_cr + 0.1 * float(np.mean(good_cr))
         pop = np.where(better[:, None], trial, pop)
         fit = np.where(better, trial_fit, fit)
         history.append(float(np.max(fit)))
@@ -142,6 +132,7 @@ def minimax_polish(
 
 
 ShortfallGrad = Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]]
+CROSSOVER = 0.7  # share of coordinates a trial point takes from its mutant
 STALL_GAIN = 1e-3  # a population gaining less than this over STALL_GENERATIONS has settled
 STALL_GENERATIONS = 10
 STALL_SPREAD = 0.05  # ... and whose points all lie within this of each other (unit cube, per coordinate)
@@ -242,14 +233,14 @@ def minimax_polish_exact(
 
 
 def _penalised(score: Objective, known: np.ndarray | None, radius: float, depth_db: float) -> Objective:
-    """``score`` less up to ``depth_db`` near each of the ``known`` points (none at ``radius``)."""
+    """``score`` less ``depth_db`` within ``radius`` (max norm) of any of the ``known`` points."""
     if known is None or not len(known):
         return score
     known = np.atleast_2d(known)
 
     def penalised(u: np.ndarray) -> np.ndarray:
         near = np.min(np.max(np.abs(u[:, None, :] - known[None, :, :]), axis=2), axis=1)
-        return score(u) - depth_db * np.clip(1.0 - near / radius, 0.0, 1.0)
+        return score(u) - depth_db * (near <= radius)
 
     return penalised
 
@@ -309,8 +300,8 @@ def inner_search(
     differences polishes the best points 1e-3 apart (kept as the benchmark's reference).
 
     ``avoid`` (k, dim): designs found before for the same choice; the population search's score
-    loses up to ``avoid_db`` near each (falling to nothing at ``avoid_radius``, max norm), so the
-    population settles in other basins.  Results are ranked by the plain ``score``.
+    loses ``avoid_db`` within ``avoid_radius`` (max norm) of each, so the population settles in
+    other basins.  Results are ranked by the plain ``score``.
     """
     if dim == 0:
         u = np.zeros((1, 0))
