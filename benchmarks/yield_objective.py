@@ -6,8 +6,9 @@ For each study, ``search: {objective: yield}`` runs with the study's own budget;
 ``objective: margin`` runs for the same wall time (a time budget, with trials enough not to stop
 first).  Both best designs are built 500 times in simulation on the same draws (the robustness view:
 ±1 mm cuts and the cables' or the study's Z0/VF spreads), and the table gives each one's yield,
-nominal margin and 5th-percentile build margin.  Where the yield stays below 90 %, the element whose
-cut tolerance costs most (sensitivity × cut spread) is named.  The last line gives the demo's yields.
+nominal margin and 5th-percentile build margin, and the element whose cut tolerance costs most
+(sensitivity × cut spread).  For the demo, a long yield-only run (far beyond the default budget)
+shows what this network can reach under these spreads.  The last line gives the demo's yields.
 """
 
 from __future__ import annotations
@@ -24,7 +25,9 @@ import optuna
 import yaml
 from machine import cpu_model
 
-from optmatch.domain.tolerance import monte_carlo
+from optmatch.domain.design import Design
+from optmatch.domain.optimise import population_search
+from optmatch.domain.tolerance import draw_errors, monte_carlo, yield_scores
 from optmatch.running.search import run_search
 from optmatch.studyfile.loader import load_study
 
@@ -81,12 +84,29 @@ def run_pair(name: str, raw: dict, workdir: Path) -> dict:
     wall_m = time.perf_counter() - t0
     res = {"name": name, "wall_y": wall, "wall_m": wall_m, "trials_y": out_y.trials_complete,
            "trials_m": out_m.trials_complete}
+    res["study"], res["designs"] = study_y, [out_y.designs[0], out_m.designs[0]]
     for key, study, out in (("y", study_y, out_y), ("m", study_m, out_m)):
         best = out.designs[0]
         rob = monte_carlo(study.problem, best, study.spread)
         res[key] = {"yield": rob.yield_frac, "margin": best.margin_db, "p5": rob.margin_p5_db,
                     "limit": _limiting(study, best, rob)}
     return res
+
+
+def long_reference(study, starts: list) -> float:
+    """Yield (on the robustness view's 500 builds) of a long yield-only run in the best design's
+    choice: population 96, 200 generations, 256 draws, seeded with the designs found."""
+    choice = starts[0].choice
+    draws = draw_errors(study.problem, choice, study.spread, 256, np.random.default_rng(99))
+
+    def score(u: np.ndarray) -> np.ndarray:
+        y, p10 = yield_scores(study.problem, u, choice, draws)
+        return y + 1e-3 * np.tanh(p10 / 3.0)
+
+    seeds = np.array([d.u for d in starts if d.choice == choice])
+    res = population_search(score, study.problem.network.dim, np.random.default_rng(5), seeds, 96, 200)
+    best = Design(choice, tuple(res.u[0]), 0.0, 0.0)
+    return monte_carlo(study.problem, best, study.spread).yield_frac
 
 
 def main() -> None:
@@ -107,9 +127,13 @@ def main() -> None:
                   f"{d['margin']:>+10.3f} {d['p5']:>+7.3f}  {d['limit']}")
     better = sum(r["y"]["yield"] >= r["m"]["yield"] for r in rows)
     demo = rows[0]
+    ref = long_reference(demo["study"], demo["designs"])
+    print(f"demo: a long yield-only run (population 96, 200 generations, 256 draws) reaches {100 * ref:.1f} %; "
+          f"the piece that limits it: {demo['y']['limit']}")
     print(f"yield objective: demo best design yield {100 * demo['y']['yield']:.1f} % vs "
           f"{100 * demo['m']['yield']:.1f} % by margin at equal wall time ({demo['wall_y']:.0f} s); "
-          f"yield >= margin's on {better}/{len(rows)} studies; load {os.getloadavg()[0]:.2f}")
+          f"(long run {100 * ref:.1f} %); yield >= margin's on {better}/{len(rows)} studies; "
+          f"load {os.getloadavg()[0]:.2f}")
 
 
 if __name__ == "__main__":
