@@ -126,7 +126,8 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
     """The optuna objective for one study: discrete picks and start → inner search → score.
 
     A trial whose choice was taken before searches away from the designs those trials found (see
-    :data:`TABU_RADIUS`), so repeats add basins instead of re-finding one.  With the ``yield``
+    :data:`TABU_RADIUS`), so repeats add basins instead of re-finding one (not for ``pareto``,
+    whose trials differ by their length weight).  With the ``yield``
     objective the nominal search is followed by a population search on the yield over
     :data:`YIELD_DRAWS` tolerance draws fixed for the trial (``spread``), ties broken by the 10th
     percentile build margin, then length.
@@ -157,7 +158,7 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
             same = [s.u for s in seeds if s.choice == choice and s is not first]
             init = np.vstack([first.u, *same]) if problem.network.dim else None
         penalty = weight if weight is not None else LENGTH_TIE_BREAK_DB_PER_WL
-        known = known_designs(trial, choice)
+        known = [] if pareto else known_designs(trial, choice)  # Pareto trials differ by their weight
         avoid = np.array([k["u"] for k in known]) if known and problem.network.dim else None
 
         def score(u: np.ndarray) -> np.ndarray:
