@@ -14,9 +14,12 @@ least Γm, hence a highest flat return loss: the ceiling.  A mask asks for
 Σ_segments ln(1/Γreq)·∫ w dω of the integral (w = 1 or ω⁻²); more than the bound cannot be met by
 any lossless network.
 
-The ceiling is exact when the load is one of the four models (its fit is exact to rounding); for
-any other load (an R–L–C model, a spot impedance, a measured load) the closest of the four over the
-band is fitted, its error reported, and the ceiling is an estimate.  Units: Ω, F, H, Hz, dB.
+The load is fitted over the band by R with L and/or C, all in series or all in parallel (the four
+simple loads and the two R–L–C loads; a series R–L–C obeys both series limits, since the other
+reactance can be taken into the lossless network, and likewise in parallel), and the tightest limit
+that holds for the closer fit gives the ceiling.  It is exact when the load is one of the four
+simple loads (the fit is exact to rounding); for any other load (an R–L–C model, a spot impedance,
+a measured load) it is an estimate, reported with the fit's largest |ΔΓ|.  Units: Ω, F, H, Hz, dB.
 """
 
 from __future__ import annotations
@@ -26,14 +29,15 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 import numpy as np
-from scipy.optimize import least_squares
+from scipy.optimize import least_squares, nnls
 
 from optmatch.domain.mask import Grid
 
 NP_TO_DB = 20.0 / math.log(10.0)
 EXACT_FIT = 1e-9  # |ΔΓ| below which a fitted model is the load itself
 
-ModelName = Literal["parallel RC", "series RC", "series RL", "parallel RL", "resistive", "reactive"]
+ModelName = Literal["parallel RC", "series RC", "series RL", "parallel RL", "series RLC", "parallel RLC",
+                    "resistive", "reactive"]
 
 
 @dataclass(frozen=True)
@@ -55,6 +59,7 @@ class Feasibility:
     fit_error: float = 0.0
     demand_share: float = 0.0
     mask_return_loss_db: float = 0.0
+    limit: str = ""  # the two-element Bode–Fano limit that sets the ceiling
 
     @property
     def feasible(self) -> bool:
@@ -70,6 +75,7 @@ class Feasibility:
             "fit_error": self.fit_error,
             "demand_share": self.demand_share,
             "mask_return_loss_db": self.mask_return_loss_db,
+            "limit": self.limit,
             "feasible": self.feasible,
             "statement": self.statement(),
         }
@@ -80,8 +86,9 @@ class Feasibility:
             return ("ceiling: none (the load is resistive over the band; Bode–Fano sets no limit)")
         how = "exact" if self.basis == "exact" else f"estimated: closest fit, |ΔΓ| ≤ {self.fit_error:.3f}"
         vals = ", ".join(_fmt_value(k, v) for k, v in self.values.items())
+        which = "" if self.limit == self.model else f", its {self.limit} limit"
         text = (f"ceiling: {self.ceiling_return_loss_db:.2f} dB flat return loss over the band "
-                f"(Bode–Fano, {self.model} load {vals}; {how})")
+                f"(Bode–Fano, {self.model} load {vals}{which}; {how})")
         if not self.feasible:
             lead = "By this estimate, no" if self.basis == "estimated" else "No"
             text += (f". {lead} lossless network can meet this mask across the band (it asks for "
@@ -171,54 +178,81 @@ def _gamma(z: np.ndarray, z_sys: float) -> np.ndarray:
     return (z - z_sys) / (z + z_sys)
 
 
-def _start(model: ModelName, z: np.ndarray, omega: np.ndarray) -> tuple[float, float] | None:
-    """Linear least-squares start (R, C or L) from the load's resistance/reactance or
-    conductance/susceptance; None when the reactive part has the wrong sign for the model."""
-    if model.startswith("series"):
-        r, react = float(np.mean(z.real)), z.imag
+Family = Literal["series", "parallel"]
+
+
+def fit_family(family: Family, z: np.ndarray, freq: np.ndarray, z_sys: float) -> dict | None:
+    """Closest R with L and/or C, all in series or all in parallel, to the load ``z`` (Ω) on
+    ``freq`` (Hz): least squares on Γ in the system impedance, each reactive part ≥ 0.
+
+    Returns {"r_ohm", "l_h" (or None), "c_f" (or None), "error": largest |ΔΓ|}, or None when the
+    fitted resistance is not positive.  The series family holds series R–L, R–C and R–L–C; the
+    parallel one parallel R–C, R–L and R–L–C.
+    """
+    omega = 2 * np.pi * freq
+    w0 = float(np.sqrt(omega.min() * omega.max()))
+    up, down = omega / w0, w0 / omega
+    if family == "series":
+        resist, react, scale = z.real, z.imag, 1.0 / z_sys  # ohms, made dimensionless
     else:
         y = 1.0 / z
-        r_g = float(np.mean(y.real))
-        r, react = (1.0 / r_g if r_g > 0 else np.inf), y.imag
-    if not (r > 0 and np.isfinite(r)):
+        resist, react, scale = y.real, y.imag, z_sys  # siemens, made dimensionless
+    r0 = float(np.mean(resist))
+    if not r0 > 0:
         return None
-    if model in ("series RL", "parallel RC"):  # reactive part ∝ ω
-        k = float(np.sum(react * omega) / np.sum(omega**2))
-        return (r, k) if k > 0 else None
-    k = float(-np.sum(react / omega) / np.sum(1.0 / omega**2))  # reactive part ∝ −1/ω
-    return (r, 1.0 / k) if k > 0 else None
-
-
-def fit_model(model: ModelName, z: np.ndarray, freq: np.ndarray, z_sys: float) -> tuple[float, float, float] | None:
-    """Closest ``model`` to the load ``z`` (Ω) on ``freq`` (Hz), by least squares on Γ in the system
-    impedance: (R, C or L, largest |ΔΓ|), or None when the model does not suit the load."""
-    omega = 2 * np.pi * freq
-    start = _start(model, z, omega)
-    if start is None:
-        return None
+    coef, _ = nnls(np.column_stack([up, -down]), react)  # reactive part ≈ a·ω/ω0 − b·ω0/ω
+    start = np.array([r0, *coef]) * scale
     g_load = _gamma(z, z_sys)
 
+    def model(p: np.ndarray) -> np.ndarray:
+        part = (p[0] + 1j * (p[1] * up - p[2] * down)) / scale
+        return part if family == "series" else 1.0 / part
+
     def resid(p: np.ndarray) -> np.ndarray:
-        d = _gamma(_model_z(model, math.exp(p[0]), math.exp(p[1]), omega), z_sys) - g_load
+        d = _gamma(model(p), z_sys) - g_load
         return np.concatenate([d.real, d.imag])
 
-    p0 = np.log(np.array(start))
-    best = p0
-    if np.max(np.abs(resid(p0))) > EXACT_FIT:
-        sol = least_squares(resid, p0, method="lm", xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=2000)
-        if np.all(np.isfinite(sol.x)) and np.sum(resid(sol.x) ** 2) <= np.sum(resid(p0) ** 2):
+    best = start
+    if np.max(np.abs(resid(start))) > EXACT_FIT:
+        lo = np.array([1e-12, 0.0, 0.0])
+        sol = least_squares(resid, np.maximum(start, lo), bounds=(lo, np.inf), method="trf", xtol=1e-15,
+                            ftol=1e-15, gtol=1e-15, max_nfev=2000)
+        if np.all(np.isfinite(sol.x)) and np.sum(resid(sol.x) ** 2) <= np.sum(resid(start) ** 2):
             best = sol.x
-    r, x = float(np.exp(best[0])), float(np.exp(best[1]))
-    err = float(np.max(np.abs(_gamma(_model_z(model, r, x, omega), z_sys) - g_load)))
-    return r, x, err
+    err = float(np.max(np.abs(_gamma(model(best), z_sys) - g_load)))
+    r_part, a, b = best / scale
+    tiny = 1e-9 * max(a, b)
+    if family == "series":  # R + jωL + 1/(jωC): a = ω0·L, b = 1/(ω0·C)
+        return {"r_ohm": float(r_part), "l_h": float(a / w0) if a > tiny else None,
+                "c_f": float(1.0 / (b * w0)) if b > tiny else None, "error": err}
+    # 1/R + jωC + 1/(jωL): a = ω0·C, b = 1/(ω0·L)
+    return {"r_ohm": float(1.0 / r_part), "l_h": float(1.0 / (b * w0)) if b > tiny else None,
+            "c_f": float(a / w0) if a > tiny else None, "error": err}
 
 
-MODELS: tuple[ModelName, ...] = ("parallel RC", "series RC", "series RL", "parallel RL")
+def _limits(family: Family, fit: dict) -> list[tuple[ModelName, float]]:
+    """The Bode–Fano limits that hold for a fitted load: (two-element model, its C or L).  A
+    series R–L–C obeys both the series R–L and the series R–C limit (the other reactance can be
+    taken into the lossless network), and likewise in parallel."""
+    out: list[tuple[ModelName, float]] = []
+    if fit["l_h"] is not None:
+        out.append(("series RL" if family == "series" else "parallel RL", fit["l_h"]))
+    if fit["c_f"] is not None:
+        out.append(("series RC" if family == "series" else "parallel RC", fit["c_f"]))
+    return out
+
+
 RESISTIVE_FRACTION = 1e-6  # |X| below this share of |Z| everywhere: a resistive load
 
 
 def ceiling(zload: np.ndarray, grid: Grid, z_sys: float) -> Feasibility:
-    """The Bode–Fano ceiling of a load ``zload`` (Ω, on ``grid.freq``) against ``grid``'s mask."""
+    """The Bode–Fano ceiling of a load ``zload`` (Ω, on ``grid.freq``) against ``grid``'s mask.
+
+    The load is fitted by R with L and/or C in series and in parallel (the four simple loads and
+    the two R–L–C loads); the closer fit is taken, every Bode–Fano limit that holds for it is
+    applied, and the tightest gives the ceiling.  Exact when the load is one of the four simple
+    loads; an estimate otherwise, with the fit's largest |ΔΓ|.
+    """
     levels = mask_levels(grid)
     mask_rl = max((rl for _, _, rl in levels), default=float(np.max(grid.min_rl_db)))
     lo = min((a for a, _, _ in levels), default=float(grid.freq.min()))
@@ -231,17 +265,18 @@ def ceiling(zload: np.ndarray, grid: Grid, z_sys: float) -> Feasibility:
         return Feasibility("resistive", {"r_ohm": float(np.mean(z.real))}, None, "exact", 0.0, 0.0, mask_rl)
     if np.any(z.real <= 0.0):
         return Feasibility("reactive", {}, 0.0, "exact", 0.0, math.inf, mask_rl)
-    fits = []
-    for model in MODELS:
-        got = fit_model(model, z, f, z_sys)
-        if got is not None:
-            fits.append((got[2], model, got[0], got[1]))
-    if not fits:  # no model suits (e.g. a negative resistance was filtered above): no estimate
+    fits = [(fit["error"], family, fit) for family in ("series", "parallel")
+            if (fit := fit_family(family, z, f, z_sys)) is not None and _limits(family, fit)]
+    if not fits:
         return Feasibility("resistive", {}, None, "estimated", math.inf, 0.0, mask_rl)
-    err, model, r, x = min(fits)
+    err, family, fit = min(fits, key=lambda t: t[0])
     bands = [(a, b) for a, b, _ in levels]
-    ceil_db = flat_ceiling_db(model, r, x, bands)
-    share = demand(model, levels) / bound(model, r, x)
-    key = "c_f" if model.endswith("RC") else "l_h"
-    return Feasibility(model, {"r_ohm": r, key: x}, ceil_db, "exact" if err <= EXACT_FIT else "estimated",
-                       0.0 if err <= EXACT_FIT else err, share, mask_rl)
+    limits = _limits(family, fit)
+    ceilings = [(flat_ceiling_db(m, fit["r_ohm"], x, bands), m, x) for m, x in limits]
+    ceil_db, limit, _ = min(ceilings)
+    share = max(demand(m, levels) / bound(m, fit["r_ohm"], x) for m, x in limits)
+    name = f"{family} R{'L' if fit['l_h'] is not None else ''}{'C' if fit['c_f'] is not None else ''}"
+    values = {k: fit[k] for k in ("r_ohm", "l_h", "c_f") if fit[k] is not None}
+    exact = err <= EXACT_FIT and len(limits) == 1
+    return Feasibility(name, values, ceil_db, "exact" if exact else "estimated", 0.0 if exact else err, share,
+                       mask_rl, limit)
