@@ -80,7 +80,8 @@ def run_run(args: argparse.Namespace) -> int:
             task = prog.add_task(study.problem.name, total=study.search.trials, status="")
 
             def report(done: int, total: int, best: float | None) -> None:
-                status = f"best margin {best:+.2f} dB" if best is not None else ""
+                status = "" if best is None else (f"best yield {100 * best:.0f} %" if study.search.objective == "yield"
+                                                  else f"best margin {best:+.2f} dB")
                 prog.update(task, completed=done, total=total, status=status)
 
             folder, doc = run_study(study, args.out, args.storage, progress_fn=report)
