@@ -43,7 +43,7 @@ YIELD_DRAWS = 64  # tolerance draws per trial for the yield objective (common ra
 YIELD_TIE = 0.5 / YIELD_DRAWS  # the p10 term stays below one build's worth of yield
 YIELD_P10_SCALE_DB = 3.0
 YIELD_SKIP_DB = 3.0  # a new choice whose nominal best fails by more than this skips the yield search
-EXACT_GRADIENTS = True  # polish with exact gradients, all picks at once (False: the older forward-difference polish)
+EXACT_GRADIENTS = True  # polish with exact gradients (False: the older forward-difference polish, for benchmarks)
 
 ProgressFn = Callable[[int, int, float | None], None]
 
