@@ -174,3 +174,83 @@ search: {{trials: {n}, seed: 3, population: 12, generations: 4}}
     assert more.trials_complete == 5
     assert more.designs[0].margin_db >= first.designs[0].margin_db
     assert values()[:3] == first_values  # the first trials are kept, not redone
+
+
+def _trial_bests(storage) -> list[tuple[tuple, float]]:
+    (summary,) = optuna.get_all_study_summaries(storage)
+    st = optuna.load_study(study_name=summary.study_name, storage=storage)
+    out = []
+    for t in st.get_trials():
+        if t.state == optuna.trial.TrialState.COMPLETE:
+            best = max(t.user_attrs["designs"], key=lambda d: d["margin_db"])
+            out.append((tuple(best["u"]), best["margin_db"]))
+    return out
+
+
+def test_repeated_choice_explores_another_basin(tmp_path, monkeypatch):
+    # Our own multimodal case (parallel R–C load, line–stub–line–stub, one fixed pair of stub ends,
+    # 18 % band): every trial takes the same discrete choice.  Without the push away from known
+    # designs, trials re-find a basin; with it, each trial returns a design of its own.
+    import optmatch.running.search as search
+
+    text = """
+load: {parallel_rlc: {r: 150, c: 2.2pF}}
+mask: {segments: [{from: 820MHz, to: 980MHz, return_loss: 20, points: 41}]}
+network:
+  elements:
+    - line: {length: {min: 0deg, max: 180deg}, z0: 50, vf: 0.66}
+    - shunt_stub: {length: {min: 5deg, max: 180deg}, end: short, z0: 50, vf: 0.66}
+    - line: {length: {min: 5deg, max: 180deg}, z0: 50, vf: 0.66}
+    - shunt_stub: {length: {min: 5deg, max: 180deg}, end: open, z0: 50, vf: 0.66}
+search: {trials: 3, seed: 5, population: 48, generations: 50}
+"""
+
+    def bests(tabu_db: float, improved_db: float) -> list[tuple[tuple, float]]:
+        monkeypatch.setattr(search, "TABU_DB", tabu_db)
+        monkeypatch.setattr(search, "IMPROVED_DB", improved_db)
+        storage = optuna.storages.InMemoryStorage()
+        run_search(_study(tmp_path, text), storage, use_seeds=False)
+        return _trial_bests(storage)
+
+    def same(a, b) -> bool:  # one basin: within the radius that marks a known design's basin
+        return np.max(np.abs(np.array(a[0]) - np.array(b[0]))) <= search.TABU_RADIUS
+
+    tabu_db, improved_db = search.TABU_DB, search.IMPROVED_DB
+    plain = bests(0.0, -np.inf)
+    assert same(plain[0], plain[1]) or same(plain[0], plain[2]) or same(plain[1], plain[2])  # as it was
+    diverse = bests(tabu_db, improved_db)
+    assert not same(diverse[0], diverse[1]) and not same(diverse[0], diverse[2])
+    assert not same(diverse[1], diverse[2])
+    assert max(m for _, m in diverse) >= max(m for _, m in plain) - 1e-6  # the best is still found
+
+
+def test_yield_objective_reaches_the_brute_force_best_yield(tmp_path):
+    # Brute force: a line and a short shunt stub (our own R–L load and mask), a 61 × 61 grid of the
+    # two lengths, each point's yield over the same 200 tolerance draws (±3 mm cuts, ±2 % VF) that
+    # rank the search's designs.  The yield objective's best design must be within 2 points of the
+    # grid's best yield, and the designs must come ranked by yield.
+    from optmatch.domain.tolerance import design_yields, draw_errors, yield_scores
+
+    study = _study(tmp_path, """
+load: {series_rlc: {r: 25, l: 20nH}}
+mask: {segments: [{from: 380MHz, to: 420MHz, return_loss: 11, points: 21}]}
+network:
+  elements:
+    - line: {length: {min: 0deg, max: 180deg}, z0: 50, vf: 0.66}
+    - shunt_stub: {length: {min: 5deg, max: 180deg}, end: short, z0: 50, vf: 0.66}
+tolerance: {cut: 3mm, vf: 2%, samples: 200}
+search: {trials: 3, seed: 1, population: 24, generations: 20, objective: yield}
+""")
+    pb, spread = study.problem, study.spread
+    outcome = _run(study)
+    assert outcome.ranked_by == "yield"
+    yields = [y for y, _ in design_yields(pb, outcome.designs, spread)]
+    assert yields == sorted(yields, reverse=True)
+    choice = outcome.designs[0].choice
+    draws = draw_errors(pb, choice, spread, spread.samples, np.random.default_rng(spread.seed))
+    axis = np.linspace(0.0, 1.0, 61)
+    grid = np.stack(np.meshgrid(axis, axis, indexing="ij"), -1).reshape(-1, 2)
+    grid_yield = np.concatenate([yield_scores(pb, grid[k:k + 400], choice, draws)[0]
+                                 for k in range(0, len(grid), 400)])
+    assert 0.1 < grid_yield.max() < 0.9  # a case where tolerances matter
+    assert yields[0] >= grid_yield.max() - 0.02

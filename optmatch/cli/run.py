@@ -90,6 +90,9 @@ def run_run(args: argparse.Namespace) -> int:
 
     optuna.logging.set_verbosity(optuna.logging.ERROR)  # an interrupted trial is not a traceback
     study = load_study(args.file)
+    feasibility = study.problem.feasibility()  # the ceiling, said before the search
+    if not (args.quiet or args.json) or not feasibility.feasible:
+        console(stderr=args.quiet or args.json).print(Text(feasibility.statement()))
     if args.quiet:
         folder, doc = run_study(study, args.out, args.storage, progress_fn=None)
     else:
@@ -97,7 +100,8 @@ def run_run(args: argparse.Namespace) -> int:
             task = prog.add_task(study.problem.name, total=study.search.trials, status="")
 
             def report(done: int, total: int, best: float | None) -> None:
-                status = f"best margin {best:+.2f} dB" if best is not None else ""
+                status = "" if best is None else (f"best yield {100 * best:.0f} %" if study.search.objective == "yield"
+                                                  else f"best margin {best:+.2f} dB")
                 prog.update(task, completed=done, total=total, status=status)
 
             folder, doc = run_study(study, args.out, args.storage, progress_fn=report)

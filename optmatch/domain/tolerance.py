@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from optmatch.domain.design import Design
+from optmatch.domain.network import Choice
 from optmatch.domain.problem import Problem
 from optmatch.units import C0
 
@@ -62,14 +63,15 @@ class Robustness:
         return d
 
 
-def _element_tolerances(problem: Problem, design: Design, spread: Spread) -> list[tuple[float, float]]:
+def _element_tolerances(problem: Problem, design: Design | Choice, spread: Spread) -> list[tuple[float, float]]:
     """(z0_rel, vf_rel) per element from the spread or the chosen medium."""
+    choice = design.choice if isinstance(design, Design) else design
     out = []
     for i, el in enumerate(problem.network.elements):
         if not el.is_line_like:
             out.append((0.0, 0.0))
             continue
-        med = el.media[design.choice.medium[i]]
+        med = el.media[choice.medium[i]]
         z0_rel = spread.z0_rel if spread.z0_rel is not None else med.z0_tol_rel
         vf_rel = spread.vf_rel if spread.vf_rel is not None else med.vf_tol_rel
         out.append((z0_rel, vf_rel))
@@ -130,23 +132,97 @@ def sensitivities(problem: Problem, design: Design) -> tuple[Sensitivity, ...]:
                              out[i].get("db_per_pct_z0"), out[i].get("db_per_pct_value")) for i in sorted(out))
 
 
-def monte_carlo(problem: Problem, design: Design, spread: Spread) -> Robustness:
-    """Yield and margin spread of ``spread.samples`` builds of ``design``, plus sensitivities."""
-    rng = np.random.default_rng(spread.seed)
-    n, m = spread.samples, len(problem.network.elements)
-    tol = _element_tolerances(problem, design, spread)
-    z0_tol = np.array([t[0] for t in tol])
-    vf_tol = np.array([t[1] for t in tol])
+@dataclass(frozen=True)
+class Draws:
+    """Build errors, one row per simulated build and one column per element, each (K, elements):
+    cut (m), velocity-factor and Z0 errors (fractions), lumped value errors (fractions)."""
+
+    cut_m: np.ndarray
+    vf_rel: np.ndarray
+    z0_rel: np.ndarray
+    value_rel: np.ndarray
+
+    @property
+    def samples(self) -> int:
+        return self.cut_m.shape[0]
+
+
+def draw_errors(problem: Problem, choice: Choice, spread: Spread, samples: int,
+                rng: np.random.Generator) -> Draws:
+    """``samples`` builds' errors, uniform within ± each tolerance (cut, then VF, Z0, value)."""
+    m = len(problem.network.elements)
+    tol = _element_tolerances(problem, choice, spread)
     line_like = np.array([el.is_line_like for el in problem.network.elements])
 
     def draw(width: np.ndarray) -> np.ndarray:
-        return rng.uniform(-1.0, 1.0, (n, m)) * width
+        return rng.uniform(-1.0, 1.0, (samples, m)) * width
 
     cut = draw(np.where(line_like, spread.cut_m, 0.0))
-    vf = draw(vf_tol)
-    z0 = draw(z0_tol)
+    vf = draw(np.array([t[1] for t in tol]))
+    z0 = draw(np.array([t[0] for t in tol]))
     value = draw(np.where(line_like, 0.0, spread.parts_rel))
-    margins = problem.margins_of(perturbed_params(problem, design, cut, vf, z0, value))
+    return Draws(cut, vf, z0, value)
+
+
+def perturbed_batch(problem: Problem, u: np.ndarray, choice: Choice, draws: Draws) -> list[dict]:
+    """Engine parameters of every build of every design: ``u`` (n, dim) designs × ``draws.samples``
+    builds, design-major (row = design·K + build); the same rules as :func:`perturbed_params`."""
+    u = np.atleast_2d(u)
+    n = u.shape[0]
+    nominal = problem.network.engine_params(u, choice)
+    out: list[dict] = []
+    for i, (el, p) in enumerate(zip(problem.network.elements, nominal, strict=True)):
+        if not el.is_line_like:
+            value = np.broadcast_to(np.asarray(p["value"], dtype=float), (n,))[:, None]
+            out.append({"value": (value * (1.0 + draws.value_rel[None, :, i])).ravel()})
+            continue
+        vf = el.media[choice.medium[i]].vf
+        delay = np.broadcast_to(np.asarray(p["delay"], dtype=float), (n,))[:, None]
+        metres = (delay - el.extra_delay) * vf * C0
+        new_metres = np.maximum(metres + draws.cut_m[None, :, i], 0.0)
+        new_vf = vf * (1.0 + draws.vf_rel[None, :, i])
+        q = dict(p)
+        q["delay"] = (new_metres / (new_vf * C0) + el.extra_delay).ravel()
+        z0 = np.broadcast_to(np.asarray(p["z0"], dtype=float), (n,))[:, None]
+        q["z0"] = (z0 * (1.0 + draws.z0_rel[None, :, i])).ravel()
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(metres > 0, new_metres / np.where(metres > 0, metres, 1.0), 0.0)
+        for key in ("loss_c", "loss_d"):
+            if key in p:
+                base = np.broadcast_to(np.asarray(p[key], dtype=float), (n,))[:, None]
+                q[key] = (base * ratio).ravel()
+        out.append(q)
+    return out
+
+
+YIELD_PERCENTILE = 10.0  # the low percentile of the build margins that breaks yield ties
+
+
+def yield_scores(problem: Problem, u: np.ndarray, choice: Choice, draws: Draws) -> tuple[np.ndarray, np.ndarray]:
+    """Yield (share of builds meeting the mask) and the 10th-percentile build margin (dB) of every
+    design in ``u`` (n, dim) over the same ``draws`` (common random numbers), each (n,)."""
+    u = np.atleast_2d(u)
+    margins = problem.margins_of(perturbed_batch(problem, u, choice, draws)).reshape(u.shape[0], draws.samples)
+    return np.mean(margins >= 0.0, axis=1), np.percentile(margins, YIELD_PERCENTILE, axis=1)
+
+
+def design_yields(problem: Problem, designs: list[Design], spread: Spread) -> list[tuple[float, float]]:
+    """(yield, p10 margin dB) of each design on the draws :func:`monte_carlo` uses (same seed and
+    samples), so a ranking by yield agrees with the robustness view's figures."""
+    out = []
+    for d in designs:
+        draws = draw_errors(problem, d.choice, spread, spread.samples, np.random.default_rng(spread.seed))
+        y, p10 = yield_scores(problem, d.vector(), d.choice, draws)
+        out.append((float(y[0]), float(p10[0])))
+    return out
+
+
+def monte_carlo(problem: Problem, design: Design, spread: Spread) -> Robustness:
+    """Yield and margin spread of ``spread.samples`` builds of ``design``, plus sensitivities."""
+    draws = draw_errors(problem, design.choice, spread, spread.samples, np.random.default_rng(spread.seed))
+    n = draws.samples
+    margins = problem.margins_of(perturbed_params(problem, design, draws.cut_m, draws.vf_rel, draws.z0_rel,
+                                                  draws.value_rel))
     return Robustness(
         yield_frac=float(np.mean(margins >= 0.0)),
         samples=n,

@@ -25,6 +25,8 @@ Connection = Literal["series", "shunt"]
 Part = Literal["r", "l", "c"]
 
 DEFAULT_CHUNK = 256
+DIRECT_PHASOR_MAX = 64  # up to this many candidates, phasors come from one exponential per point
+CACHE_GRIDS = True  # keep each frequency grid's run detection between calls
 FULL_RESCALE_EVERY = 6  # branches between per-point rescales of the wave state
 
 
@@ -136,7 +138,8 @@ class Grid:
     stays at rounding level even for long lines on long grids.
     """
 
-    def __init__(self, freq: np.ndarray):
+    def __init__(self, freq: np.ndarray, direct: bool = False):
+        self.direct = direct  # phasors by one exponential per point instead of doubling
         self.freq = np.asarray(freq, dtype=float)
         self.omega = 2.0 * np.pi * self.freq
         self.sqrt_f = np.sqrt(self.freq)
@@ -172,6 +175,8 @@ class Grid:
     def phasor(self, tau: np.ndarray) -> np.ndarray:
         """exp(jωτ) for a column of delays ``tau`` (n, 1), shaped (n, F)."""
         n = tau.shape[0]
+        if self.direct:  # small batches (a local polish): the doubling's loop costs more
+            return np.exp(1j * (tau * self.omega))
         out = np.empty((n, self.freq.size), dtype=complex)
         t = tau[:, 0]
         for start, stop, d_omega in self.runs:
@@ -188,6 +193,24 @@ class Grid:
                 step = step * step
                 done += m
         return out
+
+
+_GRIDS: dict[tuple[bytes, bool], Grid] = {}
+
+
+def cached_grid(freq: np.ndarray, n: int) -> Grid:
+    """The :class:`Grid` of ``freq`` for a batch of ``n`` candidates, kept for the few grids a
+    process uses (saves the run detection on every call of a small batch).  Batches of at most
+    :data:`DIRECT_PHASOR_MAX` take direct phasors; the choice depends on the whole batch, never
+    on the chunk, so chunking cannot change a result."""
+    f = np.ascontiguousarray(freq, dtype=float)
+    key = (f.tobytes(), n <= DIRECT_PHASOR_MAX)
+    grid = _GRIDS.get(key) if CACHE_GRIDS else None
+    if grid is None:
+        if len(_GRIDS) >= 16:
+            _GRIDS.clear()
+        grid = _GRIDS[key] = Grid(f, direct=key[1])
+    return grid
 
 
 def line_terms(p: Params, n: int, grid: Grid):
@@ -344,7 +367,7 @@ def evaluate_reduced(
     if z_sys <= 0:
         raise ValueError("system impedance must be positive")
     n = batch_size(params)
-    grid = Grid(freq)
+    grid = cached_grid(freq, n)
     outs = []
     for start in range(0, n, chunk):
         sl = slice(start, min(start + chunk, n))

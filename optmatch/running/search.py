@@ -22,9 +22,10 @@ from optuna.storages import BaseStorage
 
 from optmatch.domain.design import Design
 from optmatch.domain.network import Choice
-from optmatch.domain.optimise import inner_search
+from optmatch.domain.optimise import inner_search, population_search
 from optmatch.domain.problem import Problem
 from optmatch.domain.seeds import Seed, closed_form_seeds
+from optmatch.domain.tolerance import Spread, design_yields, draw_errors, yield_scores
 from optmatch.studyfile.loader import SearchSettings, Study
 
 optuna.logging.set_verbosity(optuna.logging.WARNING)
@@ -32,8 +33,17 @@ optuna.logging.set_verbosity(optuna.logging.WARNING)
 LENGTH_TIE_BREAK_DB_PER_WL = 1e-3  # a tenth of a wavelength costs 0.0001 dB: ties only
 PARETO_WEIGHT_MAX_DB_PER_WL = 20.0
 KEEP_PER_TRIAL = 3
+KEPT_APART = 0.05  # a trial's kept designs lie at least this far apart (unit cube): one per basin
 DISTINCT_U = 0.01  # designs closer than this (unit-cube max norm) are one design
 STOCK_SHORTAGE_DB = 100.0  # penalty per stock piece a trial's choice takes beyond the shelf
+TABU_RADIUS = 0.08  # a repeated choice's population is pushed this far (unit cube) from known designs
+TABU_DB = 20.0  # score taken off within TABU_RADIUS of a known design
+IMPROVED_DB = 1e-3  # a known design found again is kept only when at least this much better
+YIELD_DRAWS = 64  # tolerance draws per trial for the yield objective (common random numbers)
+YIELD_TIE = 0.5 / YIELD_DRAWS  # the p10 term stays below one build's worth of yield
+YIELD_P10_SCALE_DB = 3.0
+YIELD_SKIP_DB = 3.0  # a new choice whose nominal best fails by more than this skips the yield search
+EXACT_GRADIENTS = True  # polish with exact gradients (False: the older forward-difference polish, for benchmarks)
 
 ProgressFn = Callable[[int, int, float | None], None]
 
@@ -52,6 +62,7 @@ class SearchOutcome:
     seeds: list[Seed]
     stopped_early: bool
     distinct: list[Design] = field(default_factory=list)  # every distinct design found, ranked (designs: the first keep)
+    ranked_by: str = "margin"  # the objective that ranked ``designs``: margin, yield or pareto
 
 
 BUDGET_KEYS = ("trials", "time", "keep", "target_margin")
@@ -92,11 +103,41 @@ def _seed_picks(problem: Problem, seed: Seed) -> dict:
     return picks
 
 
-def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed], use_seeds: bool = True):
-    """The optuna objective for one study: discrete picks and start → inner search → margin."""
+def known_designs(trial: optuna.Trial, choice: Choice) -> list[dict]:
+    """The best design of every complete trial (any worker's) that took the same discrete choice:
+    the basins already found for it."""
+    doc = _choice_doc(choice)
+    out: list[dict] = []
+    for t in trial.study.get_trials(deepcopy=False, states=(optuna.trial.TrialState.COMPLETE,)):
+        designs = t.user_attrs.get("designs") or []
+        if t.user_attrs.get("choice") == doc and designs:
+            out.append(max(designs, key=lambda d: d["margin_db"]))
+    return out
+
+
+def _repeats(u: np.ndarray, margin: float, known: list[dict]) -> bool:
+    """True when ``u`` lies in a known design's basin (within :data:`TABU_RADIUS`) and is no
+    better than it by :data:`IMPROVED_DB`."""
+    return any(np.max(np.abs(u - np.array(k["u"])), initial=0.0) <= TABU_RADIUS
+               and margin <= k["margin_db"] + IMPROVED_DB for k in known)
+
+
+def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed], use_seeds: bool = True,
+                   spread: Spread | None = None):
+    """The optuna objective for one study: discrete picks and start → inner search → score.
+
+    A trial whose choice was taken before searches away from the designs those trials found (see
+    :data:`TABU_RADIUS`), so repeats add basins instead of re-finding one (not for ``pareto``,
+    whose trials differ by their length weight).  With the ``yield``
+    objective the nominal search is followed by a population search on the yield over
+    :data:`YIELD_DRAWS` tolerance draws fixed for the trial (``spread``), ties broken by the 10th
+    percentile build margin, then length.
+    """
     space = problem.network.choice_space()
     starts = _starts(seeds) if use_seeds else ["random"]
     pareto = settings.objective == "pareto"
+    by_yield = settings.objective == "yield"
+    spread = spread or Spread()
 
     def objective(trial: optuna.Trial):
         picks = {name: trial.suggest_categorical(name, options) for name, _, options in space}
@@ -118,6 +159,8 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
             same = [s.u for s in seeds if s.choice == choice and s is not first]
             init = np.vstack([first.u, *same]) if problem.network.dim else None
         penalty = weight if weight is not None else LENGTH_TIE_BREAK_DB_PER_WL
+        known = [] if pareto else known_designs(trial, choice)  # Pareto trials differ by their weight
+        avoid = np.array([k["u"] for k in known]) if known and problem.network.dim else None
 
         def score(u: np.ndarray) -> np.ndarray:
             return problem.margins(u, choice) - penalty * problem.length_wl(u, choice)
@@ -125,27 +168,75 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
         def shortfall(u: np.ndarray) -> np.ndarray:
             return problem.shortfalls_db(u, choice) + (penalty * problem.length_wl(u, choice))[:, None]
 
+        def shortfall_grad(u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+            return problem.shortfalls_and_grad(u, choice, penalty)
+
         res = inner_search(score, shortfall, problem.network.dim, rng, seeds=init,
-                           population=settings.population, generations=settings.generations)
+                           population=settings.population, generations=settings.generations,
+                           shortfall_grad=shortfall_grad if EXACT_GRADIENTS else None,
+                           avoid=avoid, avoid_radius=TABU_RADIUS, avoid_db=TABU_DB)
+        candidates, evaluations = res.u, res.evaluations
+        yield_of = None
+        if by_yield and problem.network.dim:
+            draws = draw_errors(problem, choice, spread, YIELD_DRAWS, np.random.default_rng([settings.seed,
+                                                                                               trial.number, 1]))
+
+            def yield_of(u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+                return yield_scores(problem, u, choice, draws)
+
+            if res.score[0] >= -YIELD_SKIP_DB or avoid is not None:  # else no build can pass: skip
+                def yscore(u: np.ndarray) -> np.ndarray:
+                    y, p10 = yield_of(u)
+                    return (y + YIELD_TIE * (0.5 + 0.5 * np.tanh(p10 / YIELD_P10_SCALE_DB))
+                            - 1e-6 * problem.length_wl(u, choice))
+
+                # start from this trial's nominal designs and the basins earlier trials found
+                starts_y = _distinct(np.vstack([res.u[:8], *([avoid] if avoid is not None else [])]), 12)
+                yres = population_search(yscore, problem.network.dim, rng, seeds=starts_y,
+                                         population=settings.population, generations=settings.generations)
+                candidates = np.vstack([yres.u, res.u])
+                evaluations += yres.evaluations * YIELD_DRAWS
         kept: list[dict] = []
-        for u in res.u:
+        repeats: list[dict] = []
+        for u in candidates:
             if len(kept) >= KEEP_PER_TRIAL:
                 break
             snaps = problem.network.snap_candidates(u)  # cut lengths to whole cut steps, re-checked
             u = snaps[int(np.argmax(score(snaps)))] if len(snaps) > 1 else snaps[0]
-            if all(np.max(np.abs(u - np.array(k["u"])), initial=0.0) > 1e-4 for k in kept) or not kept:
+            if all(np.max(np.abs(u - np.array(k["u"])), initial=0.0) > KEPT_APART for k in kept + repeats):
                 m = float(problem.margins(u, choice)[0])
                 length = float(problem.length_wl(u, choice)[0])
-                kept.append({"u": [float(x) for x in u], "margin_db": m, "length_wl": length})
+                doc = {"u": [float(x) for x in u], "margin_db": m, "length_wl": length}
+                if yield_of is not None:
+                    y, p10 = yield_of(u[None, :])
+                    doc.update(yield_frac=float(y[0]), margin_p10_db=float(p10[0]))
+                (repeats if _repeats(u, m, known) else kept).append(doc)
+        if not kept:  # nothing new within the budget: the best known design again
+            kept = repeats[:1]
         trial.set_user_attr("choice", _choice_doc(choice))
         trial.set_user_attr("designs", kept)
-        trial.set_user_attr("evaluations", int(res.evaluations))
+        trial.set_user_attr("evaluations", int(evaluations))
+        trial.set_user_attr("avoided", len(known))
+        if by_yield and "yield_frac" in kept[0]:
+            best = max(kept, key=lambda d: (d["yield_frac"], d["margin_p10_db"], -d["length_wl"]))
+            return best["yield_frac"] + YIELD_TIE * (0.5 + 0.5 * np.tanh(best["margin_p10_db"] / YIELD_P10_SCALE_DB))
         best = max(kept, key=lambda d: d["margin_db"] - penalty * d["length_wl"])
         if pareto:
             return best["margin_db"], best["length_wl"]
         return best["margin_db"]
 
     return objective
+
+
+def _distinct(u: np.ndarray, count: int, apart: float = DISTINCT_U) -> np.ndarray:
+    """The first ``count`` rows of ``u`` at least ``apart`` from each other (max norm)."""
+    out: list[np.ndarray] = []
+    for row in u:
+        if all(np.max(np.abs(row - o)) > apart for o in out):
+            out.append(row)
+        if len(out) >= count:
+            break
+    return np.array(out)
 
 
 def open_study(study: Study, storage: BaseStorage | str) -> optuna.Study:
@@ -185,8 +276,13 @@ def enqueue_seeds(ost: optuna.Study, problem: Problem, seeds: list[Seed], budget
         ost.enqueue_trial(params, skip_if_exists=True)
 
 
-def collect_designs(ost: optuna.Study) -> tuple[list[Design], list[tuple[float, float]]]:
-    """Every design kept by every complete trial, ranked: best margin first, shorter on ties."""
+def collect_designs(ost: optuna.Study, problem: Problem | None = None, spread: Spread | None = None,
+                    objective: str = "margin") -> tuple[list[Design], list[tuple[float, float]]]:
+    """Every design kept by every complete trial, ranked: best margin first, shorter on ties.
+
+    With ``objective`` ``yield`` (and the ``problem`` and ``spread``), the distinct designs are
+    ranked by their yield on the robustness view's draws, then the 10th-percentile build margin,
+    then length."""
     designs: list[Design] = []
     seen: set[tuple] = set()
     for t in _complete(ost):
@@ -205,6 +301,11 @@ def collect_designs(ost: optuna.Study) -> tuple[list[Design], list[tuple[float, 
         u = np.array(d.u)
         if all(d.choice != k.choice or np.max(np.abs(u - np.array(k.u)), initial=0.0) > DISTINCT_U for k in distinct):
             distinct.append(d)
+    if objective == "yield" and problem is not None and spread is not None and distinct:
+        ys = design_yields(problem, distinct, spread)
+        order = sorted(range(len(distinct)), key=lambda i: (-ys[i][0], -round(ys[i][1], 2),
+                                                            distinct[i].length_wl, distinct[i].trial))
+        distinct = [distinct[i] for i in order]
     return distinct, points
 
 
@@ -236,7 +337,7 @@ def run_search(
     ost = open_study(study, storage)
     if use_seeds:
         enqueue_seeds(ost, problem, seeds, settings.trials)
-    objective = make_objective(problem, settings, seeds, use_seeds)
+    objective = make_objective(problem, settings, seeds, use_seeds, spread=study.spread)
     stopped = {"early": False}
 
     def tally() -> tuple[int, float | None]:
@@ -261,7 +362,7 @@ def run_search(
     if remaining > 0:
         ost.optimize(objective, n_trials=remaining, timeout=settings.time_s, callbacks=[callback],
                      catch=())
-    designs, points = collect_designs(ost)
+    designs, points = collect_designs(ost, problem, study.spread, settings.objective)
     complete = _complete(ost)
     evaluations = sum(int(t.user_attrs.get("evaluations", 0)) for t in complete)
     return SearchOutcome(
@@ -275,4 +376,5 @@ def run_search(
         seeds=seeds,
         stopped_early=stopped["early"],
         distinct=designs,
+        ranked_by=settings.objective,
     )

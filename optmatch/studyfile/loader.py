@@ -94,7 +94,7 @@ class SearchSettings:
     keep: int = 5
     population: int = 64
     generations: int = 60
-    objective: Literal["margin", "pareto"] = "margin"
+    objective: Literal["margin", "yield", "pareto"] = "margin"
 
 
 @dataclass(frozen=True)

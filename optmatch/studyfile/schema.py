@@ -672,7 +672,7 @@ class SearchModel(_Model):
     # The upper bounds of population and samples are checked by the loader against a memory estimate.
     population: Annotated[int, Field(strict=True, ge=2, json_schema_extra={"maximum": limits.MAX_POPULATION})] = 64
     generations: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_GENERATIONS)] = 60
-    objective: Literal["margin", "pareto"] = "margin"
+    objective: Literal["margin", "yield", "pareto"] = "margin"
 
 
 NAME_PATTERN = r"^[A-Za-z0-9_.-]+$"
