@@ -165,3 +165,26 @@ search: {trials: 1, population: 8, generations: 2}
     assert text.index("No lossless network can meet this mask") < text.index("best designs")
     doc = (tmp_path / "results" / "hard" / "summary.json").read_text()
     assert '"ceiling_return_loss_db": 24.12' in doc or '"ceiling_return_loss_db": 24.13' in doc
+
+
+def test_ceiling_reaches_summary_json_and_summary_md(tmp_path):
+    # The series R–L case above (20 Ω, 15 nH, 880-1120 MHz): 24.13 dB worked by hand (Pozar, 4th ed.,
+    # sec. 5.9, recalled from memory); the results folder carries that figure in both files.
+    from optmatch.outputs.document import read_summary
+    from optmatch.running.pipeline import run_study
+
+    st = _study(tmp_path, """
+name: ceiling-shown
+load: {series_rlc: {r: 20, l: 15nH}}
+mask: {segments: [{from: 880MHz, to: 1120MHz, return_loss: 30, points: 9}]}
+network: {template: single_shunt_stub}
+search: {trials: 2, population: 12, generations: 4}
+tolerance: {samples: 20}
+""")
+    folder, _ = run_study(st, tmp_path / "results")
+    doc = read_summary(folder / "summary.json")
+    assert doc.feasibility is not None and doc.feasibility.basis == "exact"
+    assert doc.feasibility.ceiling_return_loss_db == pytest.approx(24.13, abs=0.005)
+    assert not doc.feasibility.feasible
+    text = (folder / "summary.md").read_text()
+    assert "24.13 dB flat return loss" in text and "No lossless network can meet this mask" in text

@@ -267,6 +267,28 @@ class SearchDoc:
 
 
 @dataclass(frozen=True)
+class FeasibilityDoc:
+    """The Bode–Fano ceiling said before the search (see :mod:`optmatch.domain.feasibility`).
+
+    ``model``: the load model the bound comes from; ``values``: its ``r_ohm`` and ``c_f`` or ``l_h``;
+    ``ceiling_return_loss_db``: the best flat in-band return loss any lossless network can hold (None:
+    no limit, a resistive load); ``basis``: ``exact`` or ``estimated``; ``fit_error``: largest
+    |Γ_model − Γ_load|; ``demand_share``: the mask's use of the bound (above 1 it cannot be met).
+    """
+
+    model: str
+    values: dict[str, float]
+    ceiling_return_loss_db: float | None
+    basis: str
+    fit_error: float
+    demand_share: float
+    mask_return_loss_db: float
+    limit: str
+    feasible: bool
+    statement: str
+
+
+@dataclass(frozen=True)
 class SummaryDoc:
     """Everything about one study's results; ``summary.json`` is this record as JSON.
 
@@ -299,7 +321,7 @@ class SummaryDoc:
     drive_w: float | None
     warnings: tuple[str, ...]
     build: BuildSheet | None
-    feasibility: dict[str, Any] | None = None
+    feasibility: FeasibilityDoc | None = None
     files: dict[str, str] = field(default_factory=dict)
     format: int = FORMAT
 

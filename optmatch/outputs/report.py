@@ -325,9 +325,11 @@ def study_html(row: Row, folder: Path) -> str:
         ratings = (f"<h2>Ratings at {best.power.drive_w:g} W</h2>"
                    + (f'<ul class="msg">{items}</ul>' if items else "<p>Within every rating in force.</p>"))
     desc = f'<p class="sub">{_e(s.description)}</p>' if s.description else ""
+    ceiling = f"<p>Bode–Fano {_e(s.feasibility.statement)}.</p>\n" if s.feasibility is not None else ""
     body = (f'<p><a href="../{REPORT_HTML}">← all studies</a></p>\n<h1>{_e(row.name)}</h1>\n{desc}\n'
             f'<dl class="facts">{dl}</dl>\n<h2>The load alone (no network)</h2>\n'
             f"{_html_table(LOAD_HEAD, load_cells(s.load), 'lrrrr')}\n<p>{_e(load_sentence(s.load))}</p>\n"
+            f"{ceiling}"
             f'<h2>Plots</h2>\n<div class="plots">{figs or "<p>No plots.</p>"}</div>\n'
             f"<h2>Ranked designs</h2>\n{_html_table(DESIGN_HEAD, [design_cells(d) for d in s.designs], 'rlrrrrrl')}\n"
             f"<h2>Build sheet of the best design</h2>\n{build}\n{ratings}\n"
@@ -373,6 +375,8 @@ def study_markdown(row: Row, folder: Path) -> str:
         lines += ["*The study says its data is invented: not a measurement.*", ""]
     lines += ["## The load alone (no network)", "", *table(LOAD_HEAD, load_cells(s.load), "lrrrr"), "",
               load_sentence(s.load), ""]
+    if s.feasibility is not None:
+        lines += [f"Bode–Fano {md(s.feasibility.statement)}.", ""]
     for name, caption in PLOTS:
         if (folder / name).exists():
             lines += [f"![{caption}]({name})", ""]

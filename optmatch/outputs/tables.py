@@ -281,6 +281,8 @@ def summary_markdown(doc: SummaryDoc) -> str:
 
     lines += ["## The load alone (no network)", "", *table(LOAD_HEAD, load_cells(doc.load), "lrrrr"), "",
               load_sentence(doc.load), ""]
+    if doc.feasibility is not None:
+        lines += [f"Bode–Fano {md(doc.feasibility.statement)}.", ""]
 
     if doc.designs:
         lines += ["## Ranked designs", "", *table(DESIGN_HEAD, _cells([design_cells(d) for d in doc.designs]),
