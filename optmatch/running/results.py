@@ -46,6 +46,7 @@ from optmatch.outputs.document import (
 from optmatch.outputs.network_export import export_touchstone
 from optmatch.outputs.plots import Caption, plot_pareto, plot_return_loss, plot_smith
 from optmatch.outputs.tables import design_rows, summary_markdown, write_designs_csv
+from optmatch.outputs.variants import VARIANTS_JSON, carried_variants
 from optmatch.running.alternatives import Compared, compare
 from optmatch.running.build import build_sheet, power_check, rating_warnings, stock_warnings
 from optmatch.running.search import SearchOutcome
@@ -298,6 +299,11 @@ def write_results(study: Study, outcome: SearchOutcome, out_root: Path,
         files.append(write_text_atomic(folder / "cut_list.md", cut_list_markdown(doc)))
         files.append(write_text_atomic(folder / "cut_list.csv", cut_list_csv(doc.build)))
     files.append(write_text_atomic(folder / "summary.md", summary_markdown(doc)))
-    doc = replace(doc, files={p.name: _sha256(p) for p in files})
+    hashes = {p.name: _sha256(p) for p in files}
+    variants = carried_variants(folder, doc.study, doc.inputs_digest)  # kept from the explorer, same inputs
+    for name in [VARIANTS_JSON, *(f for v in variants for f in v.files)] if variants else []:
+        if (folder / name).is_file():
+            hashes[name] = _sha256(folder / name)
+    doc = replace(doc, files=hashes, variants=variants)
     write_json_atomic(folder / "summary.json", to_json(doc))
     return folder, doc
