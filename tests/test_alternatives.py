@@ -130,6 +130,9 @@ def test_network_or_alternatives_exactly_one(tmp_path: Path) -> None:
     neither = _write(tmp_path, HEAD)
     with pytest.raises(StudyFileError, match=r"network: required key is missing \(or give alternatives"):
         load_study(neither)
+    empty = _write(tmp_path, HEAD, "network:\n")  # found by the fuzz suite: a key with no value
+    with pytest.raises(StudyFileError, match=r":7: network: is empty"):
+        load_study(empty)
 
 
 def test_problem_inside_an_alternative_names_its_key_and_line(tmp_path: Path, capsys) -> None:

@@ -249,3 +249,13 @@ def test_tuned_mm_map_back_through_the_velocity_factor(root: Path) -> None:
     got = tuning.tuned(problem, design, {c.key: 100.0})
     delay = problem.network.delays(problem.network.values(got.vector()), got.choice)[0][0]
     assert delay * 0.66 * C0 * 1e3 == pytest.approx(100.0, abs=1e-9)
+
+
+def test_sortable_rows_sort_numbers_and_text_with_blanks_last() -> None:
+    from optmatch.explorer.sortable import _sorted, row
+
+    rows = [row({"s": "b"}, {"m": 1.5}), row({"s": "A"}, {"m": None}), row({"s": "c"}, {"m": -2.0})]
+    assert [r["cells"]["s"] for r in _sorted(rows, ["m", True])] == ["b", "c", "A"]
+    assert [r["cells"]["s"] for r in _sorted(rows, ["m", False])] == ["c", "b", "A"]
+    assert [r["cells"]["s"] for r in _sorted(rows, ["s", False])] == ["A", "b", "c"]
+    assert _sorted(rows, None) == rows

@@ -643,6 +643,9 @@ def load_study(path: str | os.PathLike) -> Study:
     shelf = None
     if "shelf" in parts or "shelf" not in raw:
         shelf = shelf_context(parts.get("shelf"), catalog, probs.add)
+    for key in ("network", "alternatives"):
+        if key in raw and raw[key] is None:
+            probs.add(key, "is empty: expected keys and values")
     if "network" in raw and "alternatives" in raw:
         probs.add("alternatives", "give either network (one) or alternatives (several), not both")
     elif "network" not in raw and "alternatives" not in raw:
