@@ -259,3 +259,16 @@ def test_sortable_rows_sort_numbers_and_text_with_blanks_last() -> None:
     assert [r["cells"]["s"] for r in _sorted(rows, ["m", False])] == ["c", "b", "A"]
     assert [r["cells"]["s"] for r in _sorted(rows, ["s", False])] == ["A", "b", "c"]
     assert _sorted(rows, None) == rows
+
+
+def test_one_study_folder_as_the_root(root: Path) -> None:
+    from optmatch.explorer.app import overview_rows
+    from optmatch.explorer.data import Results
+
+    folder = root / "compare-small"
+    rows = overview_rows(Results(folder))
+    assert [r["cells"]["study"] for r in rows] == ["compare-small"]
+    client = create_app(folder).server.test_client()
+    assert client.get("/files/compare-small/summary.md").status_code == 200
+    assert client.get("/files/whip-small/summary.md").status_code == 404  # a sibling study is outside this root
+    assert client.get("/files/compare-small/..%2fwhip-small%2fsummary.md").status_code == 404
