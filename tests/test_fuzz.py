@@ -106,6 +106,13 @@ BASES: list[dict[str, Any]] = [
      "drive": {"power": "100W"}, "tolerance": {"cut": "1mm", "z0": "2%", "samples": 50},
      "network": {"template": "single_shunt_stub", "cable": "RG-58", "cut": {"step": "2mm", "min": "10mm"},
                  "allowances": ["tee"], "stubs": {"stock": True, "cut": None}}},
+    {"name": "choices", "load": {"impedance": "30+j20"},
+     "mask": {"points": 7, "segments": [{"from": "1GHz", "to": "1.1GHz", "return_loss": 14}]},
+     "shelf": {"allowances": {"tee": {"delay": "0.1ns"}}},
+     "alternatives": {"one": {"template": "single_series_stub", "cable": "RG-58", "allowances": ["tee"]},
+                      "two": {"elements": [{"line": {"length": {"min": "1mm", "max": "90mm"}, "z0": 50, "vf": 0.8}},
+                                           {"shunt_stub": {"length": "40deg", "end": "open", "z0": 75}}]},
+                      "three": {"template": "stepped_line", "sections": 2, "z0": {"min": 20, "max": 120}}}},
 ]
 
 

@@ -29,7 +29,7 @@ REPORT_LINE = ("optmatch: internal error: this is a bug in optmatch, not a probl
 
 
 def _parser() -> argparse.ArgumentParser:
-    from optmatch.cli import batch, cables, run, schema, spot, trim
+    from optmatch.cli import batch, cables, explore, run, schema, spot, trim
 
     parser = argparse.ArgumentParser(
         prog="optmatch",
@@ -44,6 +44,7 @@ def _parser() -> argparse.ArgumentParser:
     cables.register(sub)
     trim.register(sub)
     schema.register(sub)
+    explore.register(sub)
     return parser
 
 

@@ -13,9 +13,12 @@ from optmatch.cli.check import run_check
 from optmatch.cli.terminal import console, progress
 from optmatch.outputs.document import SummaryDoc, passes
 from optmatch.outputs.tables import (
+    ALTERNATIVE_ALIGN,
+    ALTERNATIVE_HEAD,
     BUILD_HEAD,
     DESIGN_HEAD,
     LOAD_HEAD,
+    alternative_cells,
     build_cells,
     design_cells,
     load_cells,
@@ -64,6 +67,9 @@ def print_summary(doc: SummaryDoc) -> None:
     out.print(_rows(_table(LOAD_HEAD, "lrrrr", f"{doc.study}: the load alone (no network)"), load_cells(doc.load)))
     out.print(Text(f"mask: {mask_text(doc.mask)}"))
     out.print(Text(load_sentence(doc.load)))
+    if doc.alternatives:
+        out.print(_rows(_table(ALTERNATIVE_HEAD, ALTERNATIVE_ALIGN, f"{doc.study}: alternatives compared (best design of each)"),
+                        [alternative_cells(a) for a in doc.alternatives]))
     if doc.designs:
         ranked = f"ranked by {doc.ranked_by}" + (", within the ratings first" if doc.drive_w is not None else "")
         out.print(_rows(_table(DESIGN_HEAD, "llrrrrrl", f"{doc.study}: best designs ({ranked})"),

@@ -24,10 +24,8 @@ from optmatch.cli.terminal import console, table
 from optmatch.domain import loads
 from optmatch.domain.design import Design
 from optmatch.domain.loads import TabulatedLoad
-from optmatch.domain.network import Choice
 from optmatch.errors import OptmatchError
 from optmatch.io.touchstone import read_one_port
-from optmatch.outputs.document import read_summary
 from optmatch.outputs.trim_report import (
     TRIM_MD,
     TRIM_PNG,
@@ -37,7 +35,8 @@ from optmatch.outputs.trim_report import (
     verdict_text,
     write_trim_files,
 )
-from optmatch.studyfile.loader import Study, load_study
+from optmatch.running.reload import design_of, read_folder, reload_study
+from optmatch.studyfile.loader import Study
 
 EXIT_NO_TRIM_RESTORES = 1
 MAX_MEASURED_BYTES = 64 * 2**20  # a bench sweep is kilobytes; refuse anything absurd before parsing it
@@ -79,51 +78,17 @@ class Built:
 
 
 def read_results(folder: Path, rank: int) -> Built:
-    """The one place that reads a results folder: its typed summary document.
-
-    From ``summary.json``: the study file (``file``), its ``inputs_digest``, the names of the study's own
-    ``files``, and design ``rank``'s ``choice`` and ``u``.  The study is loaded again and must still
-    have the same digest.
-    """
+    """The study and design ``rank`` of a results folder, through its typed summary document
+    (``running/reload.py``): the study file is loaded again and must still have the same digest."""
+    doc = read_folder(folder)
     summary = folder / "summary.json"
-    if not folder.is_dir():
-        raise TrimInputError(f"{folder}: not a folder")
-    if not summary.is_file():
-        raise TrimInputError(f"{folder}: no summary.json here (not a study's results folder, or its run has not "
-                             "finished)")
-    if summary.stat().st_size > MAX_SUMMARY_BYTES:
-        raise TrimInputError(f"{summary}: larger than {MAX_SUMMARY_BYTES // 2**20} MiB; not a study summary")
-    doc = read_summary(summary)
-    file, digest, designs = doc.file, doc.inputs_digest, doc.designs
+    designs = doc.designs
     if not 1 <= rank <= len(designs):
         raise TrimInputError(f"{summary}: --design {rank}: no such design (the study kept "
                              f"{len(designs)}: 1 to {len(designs)})" if designs else f"{summary}: the study found no design")
-    entry = designs[rank - 1]
-    medium, short, u = list(entry.choice.medium), list(entry.choice.short), list(entry.u)
-    if not all(math.isfinite(v) for v in u):
-        raise TrimInputError(f"{summary}: designs[{rank - 1}].u: holds a value that is not finite")
-    files = doc.files
-
-    path = Path(file)
-    if not path.is_absolute() and not path.is_file():
-        beside = folder.resolve().parent.parent / path  # results/<name>/ inside the folder the study ran from
-        path = beside if beside.is_file() else path
-    if not path.is_file():
-        raise TrimInputError(f"{summary}: file: the study file {file} is not found (run trim from the folder the "
-                             "study was run from)")
-    study = load_study(path)
-    if study.digest != digest:
-        raise TrimInputError(f"{path}: the study file (or its load or catalog) changed since the run that wrote "
-                             f"{summary}; run the study again")
-    net = study.problem.network
-    if len(medium) != len(net.elements) or len(short) != len(net.elements) or len(u) != net.dim:
-        raise TrimInputError(f"{summary}: designs[{rank - 1}]: does not fit the network of {path}")
-    design_choice = Choice(tuple(medium), tuple(short))
-    vec = np.array([u], dtype=float)
-    margin = float(study.problem.margins(vec, design_choice)[0])
-    length = float(study.problem.length_wl(vec, design_choice)[0])
-    return Built(study, Design(design_choice, tuple(float(v) for v in u), margin, length), rank,
-                 frozenset(str(k) for k in files))
+    study = reload_study(folder, doc)
+    sub, design = design_of(study, designs[rank - 1], f"{summary}: designs[{rank - 1}]")
+    return Built(sub, design, rank, frozenset(str(k) for k in doc.files))
 
 
 def study_load(study: Study) -> tuple[Callable[[np.ndarray], np.ndarray], tuple[float, float]]:

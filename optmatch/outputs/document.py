@@ -170,10 +170,45 @@ class DesignDoc:
     elements: tuple[ElementReport, ...]
     robustness: Robustness | None = None
     power: PowerCheck | None = None
+    alternative: str = ""  # the named network it belongs to, in a study with alternatives ("" otherwise)
 
     @property
     def passes(self) -> bool:
         return passes(self.verdict)
+
+
+@dataclass(frozen=True)
+class AlternativeDoc:
+    """One named network of a study with alternatives, by its best design (None: it found none).
+
+    ``pieces``: lines and stubs with a cable section to cut; ``junctions``: the points where pieces meet one
+    another, the load or the source (a stub's tee and the line joint at the same point count once);
+    ``total_mm``: the cable of all pieces, after allowances; ``trials``: complete trials of its search.
+    """
+
+    name: str
+    network: str
+    trials: int
+    best_rank: int | None = None
+    verdict: str | None = None
+    best_margin_db: Db | None = None
+    best_yield: float | None = None
+    total_length_wl: float | None = None
+    total_mm: float | None = None
+    pieces: int | None = None
+    junctions: int | None = None
+
+
+@dataclass(frozen=True)
+class VariantDoc:
+    """A design kept from the explorer's tuning: ``design`` (its figures, ``choice`` and ``u``, ranked as the
+    design it was tuned from), its ``name``, the rank it ``based_on`` and the ``files`` written for it
+    (Touchstone exports, relative to the results folder)."""
+
+    name: str
+    based_on: int
+    design: DesignDoc
+    files: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -324,6 +359,8 @@ class SummaryDoc:
     feasibility: FeasibilityDoc | None = None
     files: dict[str, str] = field(default_factory=dict)
     format: int = FORMAT
+    alternatives: tuple[AlternativeDoc, ...] = ()  # one row per named network (studies with alternatives)
+    variants: tuple[VariantDoc, ...] = ()  # designs kept from the explorer (variants.json), never ranked
 
     @property
     def best(self) -> DesignDoc | None:
@@ -455,7 +492,7 @@ def read_batch_state(path: str | os.PathLike) -> BatchState:
     return state
 
 
-__all__ = ["FAIL", "FAIL_RATING", "FORMAT", "PASS", "VERDICTS", "Band", "BatchState", "BatchStudy", "BuildSheet",
+__all__ = ["FAIL", "FAIL_RATING", "FORMAT", "PASS", "VERDICTS", "AlternativeDoc", "Band", "VariantDoc", "BatchState", "BatchStudy", "BuildSheet",
            "CableTotal", "Choice", "DesignDoc", "LoadPoint", "LoadView", "MaskSegment", "ParetoPoint", "Piece",
            "PowerCheck", "ResultsFileError", "SearchDoc", "SectionRating", "StockUse", "SummaryDoc", "from_json",
            "passes", "read_batch_state", "read_summary", "to_json", "vswr_of_rl"]

@@ -85,11 +85,12 @@ INVENTED_NOTE = "INVENTED data: the study says its load data is invented; this i
 
 
 def export_touchstone(problem: Problem, design: Design, folder: str | os.PathLike, rank: int = 1,
-                      invented: bool = False) -> tuple[Path, Path]:
+                      invented: bool = False, which: str | None = None) -> tuple[Path, Path]:
     """Write ``best_network.s2p`` (the network alone) and ``matched_input.s1p`` into ``folder``.
 
-    Both headers name the study, and say that the data is invented when ``invented``.  Returns the
-    two paths.  Both files are written atomically.
+    Both headers name the study and the design (``which``, default ``design rank {rank}``), and say
+    that the data is invented when ``invented``.  Returns the two paths.  Both files are written
+    atomically.
     """
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
@@ -97,7 +98,7 @@ def export_touchstone(problem: Problem, design: Design, folder: str | os.PathLik
     common = [
         f"optmatch study: {problem.name}",
         *([INVENTED_NOTE] if invented else []),
-        f"design rank {rank}: margin {design.margin_db:+.2f} dB against the mask",
+        f"{which or f'design rank {rank}'}: margin {design.margin_db:+.2f} dB against the mask",
         f"reference impedance {z:g} ohm",
     ]
     network_lines = [

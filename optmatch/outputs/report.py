@@ -30,9 +30,13 @@ from optmatch.outputs.document import (
 )
 from optmatch.outputs.markdown import md, md_block, table
 from optmatch.outputs.tables import (
+    ALTERNATIVE_ALIGN,
+    ALTERNATIVE_HEAD,
     BUILD_HEAD,
     DESIGN_HEAD,
     LOAD_HEAD,
+    alternative_cells,
+    alternatives_markdown,
     build_cells,
     design_cells,
     load_cells,
@@ -265,13 +269,28 @@ def batch_html(rows: list[Row], generated: str) -> str:
                       for cell, (_, _, num_col) in zip(cells, COLUMNS, strict=True))
         body_rows.append(f'<tr class="study" data-study="{_e(r.name)}">{tds}</tr>')
     table_html = (f'<table id="studies"><thead><tr>{head}</tr></thead><tbody>\n' + "\n".join(body_rows)
-                  + "\n</tbody></table>")
+                  + "\n</tbody></table>") + _alternatives_html(rows)
     body = (f"<h1>Batch report</h1>\n<p class=\"sub\">optmatch · {len(rows)} studies · written {_e(generated)}. "
             f"Margin: worst-case dB by which the best design clears its mask (negative = misses it). "
             f"FAIL rating: meets the mask but is over a cable's or connector's rating at the drive power.</p>\n"
             f"{_tiles(rows)}\n{table_html}\n<h2>Before you build</h2>\n{_cautions_html()}\n"
             f'<footer>Markdown twin: <a href="{REPORT_MD}">{REPORT_MD}</a></footer>')
     return _page("optmatch batch report", body)
+
+
+def _alternative_rows(rows: Sequence[Row]) -> list[list[str]]:
+    """One row per alternative of every study that compared several networks: the study, then its cells."""
+    return [[r.name, *alternative_cells(a)] for r in rows if r.summary is not None for a in r.summary.alternatives]
+
+
+def _alternatives_html(rows: Sequence[Row]) -> str:
+    found = _alternative_rows(rows)
+    if not found:
+        return ""
+    return ("\n<h2>Alternatives compared</h2>\n<p class=\"sub\">Studies that searched several named networks for "
+            "one load and mask: each row is one network's best design.</p>\n"
+            + _html_table(("study", *ALTERNATIVE_HEAD), found, "l" + ALTERNATIVE_ALIGN).replace(
+                "<table>", '<table id="alternatives">', 1))
 
 
 def _html_table(head: Sequence[str], rows: Sequence[Sequence[str]], numeric: str = "") -> str:
@@ -331,7 +350,9 @@ def study_html(row: Row, folder: Path) -> str:
             f"{_html_table(LOAD_HEAD, load_cells(s.load), 'lrrrr')}\n<p>{_e(load_sentence(s.load))}</p>\n"
             f"{ceiling}"
             f'<h2>Plots</h2>\n<div class="plots">{figs or "<p>No plots.</p>"}</div>\n'
-            f"<h2>Ranked designs</h2>\n{_html_table(DESIGN_HEAD, [design_cells(d) for d in s.designs], 'rlrrrrrl')}\n"
+            + (f"<h2>Alternatives compared</h2>\n{_html_table(ALTERNATIVE_HEAD, [alternative_cells(a) for a in s.alternatives], ALTERNATIVE_ALIGN)}\n"
+               if s.alternatives else "")
+            + f"<h2>Ranked designs</h2>\n{_html_table(DESIGN_HEAD, [design_cells(d) for d in s.designs], 'rlrrrrrl')}\n"
             f"<h2>Build sheet of the best design</h2>\n{build}\n{ratings}\n"
             f"<h2>Before you build</h2>\n{_cautions_html()}\n"
             f'<footer>Markdown twin: <a href="{STUDY_MD}">{STUDY_MD}</a> · data: '
@@ -356,7 +377,12 @@ def batch_markdown(rows: list[Row], generated: str) -> str:
                            c["time"]])
     counts = ", ".join(f"{n} {t}" for n, t in tally(rows)[1:])
     lines = ["# Batch report", "", f"optmatch · {len(rows)} studies ({counts}) · written {md(generated)}.", "",
-             *table([label for _, label, _ in COLUMNS], table_rows, "lll" + "r" * 5), "", "## Before you build", "",
+             *table([label for _, label, _ in COLUMNS], table_rows, "lll" + "r" * 5), ""]
+    found = _alternative_rows(rows)
+    if found:
+        lines += ["## Alternatives compared", "", *table(("study", *ALTERNATIVE_HEAD), [[md(c) for c in r] for r in found],
+                                                         "l" + ALTERNATIVE_ALIGN), ""]
+    lines += ["## Before you build", "",
              *[f"- {c}" for c in CAUTIONS], ""]
     return "\n".join(lines)
 
@@ -380,6 +406,7 @@ def study_markdown(row: Row, folder: Path) -> str:
     for name, caption in PLOTS:
         if (folder / name).exists():
             lines += [f"![{caption}]({name})", ""]
+    lines += alternatives_markdown(s)
     lines += ["## Ranked designs", "", *table(DESIGN_HEAD, [[md(c) for c in design_cells(d)] for d in s.designs],
                                              "llrrrrrl"), ""]
     lines += ["## Build sheet of the best design", ""]

@@ -16,7 +16,7 @@ from pathlib import Path
 
 from optmatch.domain.design import ElementReport
 from optmatch.io.atomic import write_text_atomic
-from optmatch.outputs.document import BuildSheet, DesignDoc, LoadView, MaskSegment, SummaryDoc
+from optmatch.outputs.document import AlternativeDoc, BuildSheet, DesignDoc, LoadView, MaskSegment, SummaryDoc
 from optmatch.outputs.markdown import md, md_block, table
 
 VALUE_UNIT = {"r": "ohm", "l": "H", "c": "F"}
@@ -86,8 +86,30 @@ DESIGN_HEAD = ("rank", "verdict", "margin (dB)", "worst RL (dB)", "at (MHz)", "l
 
 def design_cells(d: DesignDoc) -> list[str]:
     """A ranked design's row (shared by the terminal, summary.md and the study page)."""
-    return [str(d.rank), d.verdict, num(d.margin_db, "+.2f", "+∞"), num(d.worst_return_loss_db, ".2f"),
+    rank = f"{d.rank} ({d.alternative})" if d.alternative else str(d.rank)
+    return [rank, d.verdict, num(d.margin_db, "+.2f", "+∞"), num(d.worst_return_loss_db, ".2f"),
             f"{d.worst_freq_hz / 1e6:.2f}", f"{d.total_length_wl:.3f}", yield_text(d), elements_text(d)]
+
+
+ALTERNATIVE_HEAD = ("alternative", "network", "best rank", "verdict", "best margin (dB)", "best yield",
+                    "length (λ)", "cable (mm)", "pieces", "junctions")
+ALTERNATIVE_ALIGN = "llrlrrrrrr"
+
+
+def alternative_cells(a: AlternativeDoc) -> list[str]:
+    """One alternative's row, by its best design (shared by the terminal, summary.md, the report and the explorer)."""
+    return [a.name, a.network, num(a.best_rank, "d"), a.verdict or "no design", num(a.best_margin_db, "+.2f", "+∞"),
+            DASH if a.best_yield is None else f"{100.0 * a.best_yield:.0f}%", num(a.total_length_wl, ".3f"),
+            num(a.total_mm, ".0f"), num(a.pieces, "d"), num(a.junctions, "d")]
+
+
+def alternatives_markdown(doc: SummaryDoc, heading: str = "##") -> list[str]:
+    """The comparison of a study's alternatives (empty for a study with one network)."""
+    if not doc.alternatives:
+        return []
+    return [f"{heading} Alternatives compared", "",
+            "Each named network was searched with the same budget; each row is its best design.", "",
+            *table(ALTERNATIVE_HEAD, _cells([alternative_cells(a) for a in doc.alternatives]), ALTERNATIVE_ALIGN), ""]
 
 
 BUILD_HEAD = ("#", "part", "cable", "Z0 (Ω)", "end", "electrical incl. allowances (°)", "allowances (°)", "cut (mm)")
@@ -148,7 +170,7 @@ def design_rows(designs: Sequence[DesignDoc]) -> list[dict]:
     """
     rows = []
     for d in designs:
-        row: dict = {"rank": d.rank, "verdict": d.verdict, "margin_db": d.margin_db,
+        row: dict = {"rank": d.rank, **({"alternative": d.alternative} if d.alternative else {}), "verdict": d.verdict, "margin_db": d.margin_db,
                      "worst_rl_db": d.worst_return_loss_db, "worst_freq_hz": d.worst_freq_hz,
                      "length_wl": d.total_length_wl,
                      "yield_frac": None if d.robustness is None else d.robustness.yield_frac}
@@ -284,6 +306,7 @@ def summary_markdown(doc: SummaryDoc) -> str:
     if doc.feasibility is not None:
         lines += [f"Bode–Fano {md(doc.feasibility.statement)}.", ""]
 
+    lines += alternatives_markdown(doc)
     if doc.designs:
         lines += ["## Ranked designs", "", *table(DESIGN_HEAD, _cells([design_cells(d) for d in doc.designs]),
                                                   "llrrrrrl"), ""]

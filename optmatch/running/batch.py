@@ -29,8 +29,9 @@ from optuna.storages import BaseStorage
 from optmatch.errors import OptmatchError
 from optmatch.io.atomic import write_json_atomic
 from optmatch.outputs.report import write_report
+from optmatch.running.alternatives import search_study
 from optmatch.running.results import results_dir, write_results
-from optmatch.running.search import enqueue_seeds, open_study, run_search, study_seeds
+from optmatch.running.search import enqueue_seeds, open_study, study_seeds
 from optmatch.running.storage import fail_stale, is_url, live_running, open_database, open_storage
 from optmatch.studyfile.loader import Study, StudyFileError, load_study
 
@@ -247,13 +248,13 @@ class Batch:
         def progress(done: int, total: int, best: float | None) -> None:
             self.listener.study_progress(entry, done, total, best)
 
-        outcome = run_search(study, storage, progress=progress)
+        outcome = search_study(study, storage, progress=progress)
         if self.helpers:
             # A helper may still be finishing a trial of this study: let it land in the results.
             ost = open_study(study, storage)
             while live_running(ost) and self._helpers_running():
                 time.sleep(HELPER_POLL_S)
-            outcome = run_search(study, storage)
+            outcome = search_study(study, storage)
         elapsed = time.monotonic() - start
         outcome = replace(outcome, elapsed_s=elapsed)
         _, doc = write_results(study, outcome, self.out_root)

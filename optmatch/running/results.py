@@ -47,6 +47,8 @@ from optmatch.outputs.document import (
 from optmatch.outputs.network_export import export_touchstone
 from optmatch.outputs.plots import Caption, plot_pareto, plot_return_loss, plot_smith
 from optmatch.outputs.tables import design_rows, summary_markdown, write_designs_csv
+from optmatch.outputs.variants import VARIANTS_JSON, carried_variants
+from optmatch.running.alternatives import Compared, compare
 from optmatch.running.build import build_sheet, power_check, rating_warnings, stock_warnings
 from optmatch.running.search import SearchOutcome
 from optmatch.studyfile.loader import Study
@@ -151,15 +153,17 @@ def verdict_of(margin_db: float, power: PowerCheck | None) -> str:
     return PASS
 
 
-def design_doc(study: Study, design: Design, perf: Performance, rank: int, power: PowerCheck | None) -> DesignDoc:
-    """Everything about one design, from its one :func:`performance` evaluation."""
+def design_doc(study: Study, design: Design, perf: Performance, rank: int, power: PowerCheck | None,
+               alternative: str = "") -> DesignDoc:
+    """Everything about one design, from its one :func:`performance` evaluation (``study``: the study of
+    the network it belongs to; ``alternative``: that network's name in a study with alternatives)."""
     return DesignDoc(
         rank=rank, verdict=verdict_of(design.margin_db, power), margin_db=design.margin_db,
         worst_return_loss_db=perf.worst_rl_db, worst_freq_hz=float(perf.freq[perf.worst_index]),
         max_network_loss_db=float(np.nanmax(perf.network_loss_db)), total_length_wl=design.length_wl,
         trial=design.trial, choice=Choice(tuple(design.choice.medium), tuple(design.choice.short)),
         u=tuple(float(x) for x in design.u), elements=tuple(describe(study.problem, design)),
-        robustness=monte_carlo(study.problem, design, study.spread), power=power,
+        robustness=monte_carlo(study.problem, design, study.spread), power=power, alternative=alternative,
     )
 
 
@@ -199,20 +203,42 @@ def verdict_line(verdict: str, designs: Sequence[DesignDoc], load: LoadView, rat
 
 @dataclass(frozen=True)
 class Built:
-    """The summary document with the band figures it was made from (for the plots)."""
+    """The summary document with the band figures it was made from (for the plots); ``studies`` holds,
+    per ranked design, the study of the network it belongs to (its alternative's, or the study)."""
 
     doc: SummaryDoc
     ranked: list[tuple[Design, Performance]]
     load: Performance
+    studies: list[Study]
+
+
+def _rated_across(study: Study, outcome: SearchOutcome) -> tuple[list[tuple[str, Study, Design, PowerCheck | None]],
+                                                                 Rated]:
+    """The designs to report with the study and name of their network: for a study with alternatives,
+    ``keep`` per alternative, ranked across them (within the ratings first, then margin, then length)."""
+    parts = outcome.parts if isinstance(outcome, Compared) else (("", outcome),)
+    entries: list[tuple[str, Study, Design, PowerCheck | None]] = []
+    rateds: list[Rated] = []
+    for name, part in parts:
+        sub = study.alternative(name)
+        rated = rank_within_ratings(sub, part.distinct or part.designs, study.search.keep)
+        rateds.append(rated)
+        entries += [(name, sub, d, pc) for d, pc in rated.designs]
+    if len(parts) == 1:
+        return entries, rateds[0]
+    entries.sort(key=lambda e: (e[3] is not None and not e[3].within, -round(e[2].margin_db, 2), e[2].length_wl))
+    overs = [r.best_over for r in rateds if r.best_over is not None]
+    best_over = max(overs, key=lambda o: o[0].margin_db) if overs else None
+    return entries, Rated([(d, pc) for _, _, d, pc in entries], sum(r.over_rating_passing for r in rateds), best_over)
 
 
 def build_summary(study: Study, outcome: SearchOutcome, warnings: Sequence[str] = ()) -> Built:
     """Rank, evaluate each design once, and assemble the summary document."""
     problem = study.problem
-    candidates = outcome.distinct or outcome.designs
-    rated = rank_within_ratings(study, candidates, study.search.keep)
-    ranked = [(d, performance(problem, d), pc) for d, pc in rated.designs]
-    designs = tuple(design_doc(study, d, perf, k + 1, pc) for k, (d, perf, pc) in enumerate(ranked))
+    entries, rated = _rated_across(study, outcome)
+    ranked = [(d, performance(sub.problem, d), pc) for _, sub, d, pc in entries]
+    designs = tuple(design_doc(sub, d, perf, k + 1, pc, name)
+                    for k, ((name, sub, _, _), (d, perf, pc)) in enumerate(zip(entries, ranked, strict=True)))
     alone = bare_load(problem)
     load = load_view(study, alone)
     verdict = PASS if load.meets_mask else (designs[0].verdict if designs else FAIL)
@@ -220,7 +246,7 @@ def build_summary(study: Study, outcome: SearchOutcome, warnings: Sequence[str] 
     notes = list(warnings)
     if designs:
         best, perf, power = ranked[0]
-        sheet = build_sheet(study, best, designs[0].elements, perf)
+        sheet = build_sheet(entries[0][1], best, designs[0].elements, perf)
         notes += stock_warnings(sheet) + rating_warnings(power)
     doc = SummaryDoc(
         study=problem.name, description=study.description, file=str(study.path), inputs_digest=study.digest,
@@ -236,8 +262,9 @@ def build_summary(study: Study, outcome: SearchOutcome, warnings: Sequence[str] 
                          stopped_early=outcome.stopped_early, seeds=tuple(s.origin for s in outcome.seeds),
                          settings=dict(study.search.__dict__)),
         tolerance=study.spread, drive_w=study.drive_w, warnings=tuple(notes), build=sheet,
+        alternatives=compare(study, designs, outcome),
     )
-    return Built(doc, [(d, perf) for d, perf, _ in ranked], alone)
+    return Built(doc, [(d, perf) for d, perf, _ in ranked], alone, [sub for _, sub, _, _ in entries])
 
 
 def summary_document(study: Study, outcome: SearchOutcome, warnings: Sequence[str] = ()) -> SummaryDoc:
@@ -265,7 +292,7 @@ def write_results(study: Study, outcome: SearchOutcome, out_root: Path,
                                       segments=list(problem.grid.segments), load=built.load, caption=caption))
         files.append(plot_smith(perfs, folder / "smith.png", problem.z_sys,
                                 min_rl_db=float(problem.grid.min_rl_db.max()), load=built.load, caption=caption))
-        files += list(export_touchstone(problem, built.ranked[0][0], folder, invented=doc.invented))
+        files += list(export_touchstone(built.studies[0].problem, built.ranked[0][0], folder, invented=doc.invented))
     if outcome.pareto:
         front = [(d.margin_db, d.length_wl) for d in outcome.pareto]
         files.append(plot_pareto(outcome.all_points, front, folder / "pareto.png", caption=caption))
@@ -274,6 +301,11 @@ def write_results(study: Study, outcome: SearchOutcome, out_root: Path,
         files.append(write_text_atomic(folder / "cut_list.md", cut_list_markdown(doc)))
         files.append(write_text_atomic(folder / "cut_list.csv", cut_list_csv(doc.build)))
     files.append(write_text_atomic(folder / "summary.md", summary_markdown(doc)))
-    doc = replace(doc, files={p.name: _sha256(p) for p in files})
+    hashes = {p.name: _sha256(p) for p in files}
+    variants = carried_variants(folder, doc.study, doc.inputs_digest)  # kept from the explorer, same inputs
+    for name in [VARIANTS_JSON, *(f for v in variants for f in v.files)] if variants else []:
+        if (folder / name).is_file():
+            hashes[name] = _sha256(folder / name)
+    doc = replace(doc, files=hashes, variants=variants)
     write_json_atomic(folder / "summary.json", to_json(doc))
     return folder, doc

@@ -15,8 +15,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from optmatch.errors import OptmatchError
+from optmatch.running.alternatives import search_study
 from optmatch.running.results import results_dir
-from optmatch.running.search import run_search
 from optmatch.running.storage import open_storage
 from optmatch.studyfile.loader import Study, StudyFileError, load_study
 
@@ -38,7 +38,7 @@ def join_study(study: Study, storage_url: str | None, out_root: Path,
                progress: Callable[[int, int, float | None], None] | None = None) -> WorkerResult:
     """Run trials of ``study`` into its storage until its budget is met."""
     storage = open_storage(storage_url, results_dir(study, out_root))
-    outcome = run_search(study, storage, progress=progress)
+    outcome = search_study(study, storage, progress=progress)
     best = outcome.designs[0].margin_db if outcome.designs else None
     return WorkerResult(study.path, study.problem.name, outcome.trials_complete, best)
 

@@ -13,6 +13,7 @@ MAX_POINTS_PER_SEGMENT = 10_001
 MAX_GRID_POINTS = 20_001  # after merging every segment
 MAX_SEGMENTS = 1_000
 MAX_ELEMENTS = 64
+MAX_ALTERNATIVES = 8  # named networks in one study, each searched in full
 MAX_SECTIONS = 64  # stepped-line sections
 MAX_TRIALS = 100_000
 MAX_KEEP = 1_000

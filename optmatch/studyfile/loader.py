@@ -40,6 +40,7 @@ from optmatch.studyfile.schema import (
     BRANCH_MARK,
     ELEMENT_KINDS,
     SECTION_MODELS,
+    Alternatives,
     Frequency,
     LengthRange,
     LineModel,
@@ -112,6 +113,25 @@ class Study:
     drive_w: float | None = None  # available source power for the power check (W)
     spread: Spread = Spread()  # build tolerances for the yield Monte Carlo
     notes: tuple[str, ...] = ()  # what the loader read into the file (e.g. a bare cable designation's class)
+    alternatives: tuple[Alternative, ...] = ()  # several named networks (then ``problem`` is the first one's)
+
+    def alternative(self, name: str) -> Study:
+        """The study of alternative ``name`` (this study itself for ``""`` when it has one network)."""
+        if not name and not self.alternatives:
+            return self
+        for alt in self.alternatives:
+            if alt.name == name:
+                return alt.study
+        raise KeyError(name)
+
+
+@dataclass(frozen=True)
+class Alternative:
+    """One named network of a study with ``alternatives:``: a whole study of its own, as if the file gave
+    that network under ``network:`` (same name, load, mask, search and shelf)."""
+
+    name: str
+    study: Study
 
 
 # ---------------------------------------------------------------- YAML
@@ -272,6 +292,28 @@ class _Problems:
             for line in exc.problems or [str(exc)]:
                 self.add(where, line)
             return None
+
+    def within(self, prefix: str) -> _Problems:
+        """These problems, with key paths under ``network`` reported under ``prefix`` instead (an
+        alternative's network is resolved by the same code as ``network:``)."""
+        return _Within(self, prefix)
+
+
+class _Within(_Problems):
+    def __init__(self, outer: _Problems, prefix: str) -> None:
+        self.outer, self.prefix = outer, prefix
+
+    def _key(self, where: str) -> str:
+        return self.prefix + where[len("network"):] if where.split(".")[0].split("[")[0] == "network" else where
+
+    def add(self, where: str, what: str) -> None:
+        self.outer.add(self._key(where), what)
+
+    def file(self, what: str) -> None:
+        self.outer.file(what)
+
+    def note(self, where: str, what: str) -> None:
+        self.outer.note(self._key(where), what)
 
 
 def _grid(mask: MaskModel) -> Grid:
@@ -439,24 +481,31 @@ def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
 # ---------------------------------------------------------------- names and files, checked on the raw file
 
 
+def _networks(raw: dict) -> list[tuple[str, Any]]:
+    """(key path, raw body) of the file's network, or of each of its alternatives."""
+    alts = raw.get("alternatives")
+    named = [(f"alternatives.{k}", v) for k, v in alts.items()] if isinstance(alts, dict) else []
+    return ([("network", raw["network"])] if "network" in raw else []) + named
+
+
 def _role_bodies(raw: dict) -> list[tuple[str, dict]]:
     """(key path, mapping) of every place in the raw file that may name cables or allowances."""
     out: list[tuple[str, dict]] = []
-    net = raw.get("network")
-    if not isinstance(net, dict):
-        return out
-    out.append(("network", net))
-    for role in ROLES:
-        if isinstance(net.get(role), dict):
-            out.append((f"network.{role}", net[role]))
-    elements = net.get("elements")
-    if isinstance(elements, list):
-        for i, entry in enumerate(elements):
-            if not isinstance(entry, dict):
-                continue
-            for kind, body in entry.items():
-                if kind in ELEMENT_KINDS and isinstance(body, dict):
-                    out.append((f"network.elements[{i}].{kind}", body))
+    for top, net in _networks(raw):
+        if not isinstance(net, dict):
+            continue
+        out.append((top, net))
+        for role in ROLES:
+            if isinstance(net.get(role), dict):
+                out.append((f"{top}.{role}", net[role]))
+        elements = net.get("elements")
+        if isinstance(elements, list):
+            for i, entry in enumerate(elements):
+                if not isinstance(entry, dict):
+                    continue
+                for kind, body in entry.items():
+                    if kind in ELEMENT_KINDS and isinstance(body, dict):
+                        out.append((f"{top}.elements[{i}].{kind}", body))
     return out
 
 
@@ -552,6 +601,8 @@ def _sections(raw: dict, exc: ValidationError) -> dict[str, Any]:
             got[key] = model.model_validate(raw[key])
         elif key not in raw and key not in bad and key in ("search", "tolerance"):
             got[key] = model()
+    if "alternatives" in raw and "alternatives" not in bad:
+        got["alternatives"] = TypeAdapter(Alternatives).validate_python(raw["alternatives"])
     for key, typ, default in (("system", Ohms, 50.0), ("reference", Frequency, None)):
         if key not in bad:
             got[key] = TypeAdapter(typ).validate_python(raw[key]) if key in raw else default
@@ -573,8 +624,8 @@ def load_study(path: str | os.PathLike) -> Study:
     parts: dict[str, Any]
     try:
         model: StudyModel | None = StudyModel.model_validate(raw)
-        parts = {k: getattr(model, k) for k in ("load", "mask", "network", "search", "system", "reference",
-                                                 "shelf", "drive", "tolerance")}
+        parts = {k: getattr(model, k) for k in ("load", "mask", "network", "alternatives", "search", "system",
+                                                 "reference", "shelf", "drive", "tolerance")}
     except ValidationError as exc:
         model = None
         _pydantic_problems(probs, exc)
@@ -592,26 +643,57 @@ def load_study(path: str | os.PathLike) -> Study:
     shelf = None
     if "shelf" in parts or "shelf" not in raw:
         shelf = shelf_context(parts.get("shelf"), catalog, probs.add)
-    if "network" in parts and f_ref is not None and "system" in parts:
-        elements = _elements(parts["network"], f_ref, parts["system"], probs, shelf)
-    _check_work(parts, elements, probs)
+    for key in ("network", "alternatives"):
+        if key in raw and raw[key] is None:
+            probs.add(key, "is empty: expected keys and values")
+    if "network" in raw and "alternatives" in raw:
+        probs.add("alternatives", "give either network (one) or alternatives (several), not both")
+    elif "network" not in raw and "alternatives" not in raw:
+        probs.add("network", "required key is missing (or give alternatives: several named networks)")
+    alt_elements: dict[str, tuple[ElementSpec, ...] | None] = {}
+    if f_ref is not None and "system" in parts:
+        if parts.get("network") is not None:
+            elements = _elements(parts["network"], f_ref, parts["system"], probs, shelf)
+        for alt_name, net in (parts.get("alternatives") or {}).items():
+            alt_elements[alt_name] = _elements(net, f_ref, parts["system"], probs.within(f"alternatives.{alt_name}"),
+                                               shelf)
+    for alt_name, alt_els in alt_elements.items():
+        _check_work(parts, alt_els, probs.within(f"alternatives.{alt_name}"))
+    if not alt_elements:
+        _check_work(parts, elements, probs)
     if model is not None and model.name is None and study_name_problem(_default_name(p)):
         probs.file("the file name gives no usable study name; add name: to the file")
 
     if model is None or probs.lines:
         raise StudyFileError(probs.lines)
-    assert grid is not None and zload is not None and elements is not None and f_ref is not None
+    assert grid is not None and zload is not None and f_ref is not None
     s: SearchModel = model.search
     search = SearchSettings(trials=s.trials, time_s=s.time, seed=s.seed, target_margin_db=s.target_margin,
                             keep=s.keep, population=s.population, generations=s.generations,
                             objective=s.objective)
     assert shelf is not None
-    problem = Problem(name=model.name or _default_name(p), z_sys=model.system, grid=grid, zload=zload,
-                      network=NetworkSpec(elements, shelf.stock_tuple()), f_ref=f_ref)
-    return Study(path=p, problem=problem, search=search, raw=raw, digest=_digest(raw, ts_bytes + extra_bytes),
-                 description=model.description, cables=shelf.catalog,
-                 drive_w=model.drive.power if model.drive is not None else None,
-                 spread=_spread(model.tolerance, search.seed), notes=tuple(probs.notes))
+    digest = _digest(raw, ts_bytes + extra_bytes)
+
+    def study_of(els: tuple[ElementSpec, ...], study_raw: dict, alternatives: tuple[Alternative, ...] = ()) -> Study:
+        problem = Problem(name=model.name or _default_name(p), z_sys=model.system, grid=grid, zload=zload,
+                          network=NetworkSpec(els, shelf.stock_tuple()), f_ref=f_ref)
+        return Study(path=p, problem=problem, search=search, raw=study_raw, digest=digest,
+                     description=model.description, cables=shelf.catalog,
+                     drive_w=model.drive.power if model.drive is not None else None,
+                     spread=_spread(model.tolerance, search.seed), notes=tuple(probs.notes),
+                     alternatives=alternatives)
+
+    if not alt_elements:
+        assert elements is not None
+        return study_of(elements, raw)
+    alts = []
+    for alt_name, alt_els in alt_elements.items():
+        assert alt_els is not None
+        # the file as if it gave this alternative as its one network, keys in the file's order
+        alt_raw = {("network" if k == "alternatives" else k): (raw[k][alt_name] if k == "alternatives" else v)
+                   for k, v in raw.items()}
+        alts.append(Alternative(alt_name, study_of(alt_els, alt_raw)))
+    return study_of(alts[0].study.problem.network.elements, raw, tuple(alts))
 
 
 def check_study(path: str | os.PathLike) -> list[str]:
@@ -623,4 +705,4 @@ def check_study(path: str | os.PathLike) -> list[str]:
     return []
 
 
-__all__ = ["SearchSettings", "Study", "StudyFileError", "check_study", "load_study", "key_path"]
+__all__ = ["Alternative", "SearchSettings", "Study", "StudyFileError", "check_study", "load_study", "key_path"]

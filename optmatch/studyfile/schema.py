@@ -704,10 +704,19 @@ def _study_name(v: str) -> str:
     return v
 
 
-class StudyModel(_Model):
-    """A whole study file."""
+ALTERNATIVE_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,39}$"
+Alternatives = Annotated[
+    dict[Annotated[str, Field(strict=True, pattern=ALTERNATIVE_PATTERN)], NetworkModel],
+    Field(min_length=1, max_length=limits.MAX_ALTERNATIVES,
+          description="several named networks for the same load and mask, each searched and ranked side by "
+                      "side (instead of network:); a name is letters, digits, '_', '.' and '-', at most 40")]
 
-    model_config = ConfigDict(title="optmatch study file")
+
+class StudyModel(_Model):
+    """A whole study file: one ``network``, or several named ``alternatives`` (exactly one of the two)."""
+
+    model_config = ConfigDict(title="optmatch study file",
+                              json_schema_extra={"oneOf": [{"required": ["network"]}, {"required": ["alternatives"]}]})
 
     name: Annotated[str, Field(strict=True), AfterValidator(_study_name),
                     WithJsonSchema({"type": "string", "pattern": NAME_JSON_PATTERN,
@@ -717,7 +726,8 @@ class StudyModel(_Model):
     reference: Frequency | None = None
     load: LoadModel
     mask: MaskModel
-    network: NetworkModel
+    network: NetworkModel | None = None
+    alternatives: Alternatives | None = None
     search: SearchModel = Field(default_factory=SearchModel)
     shelf: ShelfModel | None = None
     drive: DriveModel | None = None
