@@ -55,7 +55,8 @@ STORAGE_METHODS = ("create_new_study", "create_new_trial", "set_trial_param", "s
                    "set_trial_user_attr", "set_trial_system_attr", "get_trial", "get_all_trials",
                    "get_study_id_from_name", "get_study_directions", "get_study_user_attrs",
                    "get_study_system_attrs", "get_all_studies", "get_trial_id_from_study_id_trial_number",
-                   "get_n_trials", "get_best_trial", "_get_stale_trial_ids", "record_heartbeat")
+                   "get_n_trials", "get_best_trial", "stale_trial_ids", "record_heartbeat",
+                   "set_study_user_attr")
 
 
 class StorageClock:
@@ -122,7 +123,7 @@ def timed_batch(folder: Path, out: Path, workers: int) -> float:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--studies", type=int, default=4)
+    ap.add_argument("--studies", type=int, default=8)
     ap.add_argument("--trials", type=int, default=24)
     ap.add_argument("--population", type=int, default=48)
     ap.add_argument("--generations", type=int, default=50)

@@ -20,7 +20,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--workers", type=int, default=1,
                    help="processes working on the studies on this machine (default 1)")
     p.add_argument("--storage", default=None,
-                   help="database URL shared with other machines (default: a journal file per study)")
+                   help="database URL shared with other machines (default: $OPTMATCH_STORAGE, else a journal "
+                        "file per study); the environment keeps a password off the command line")
+    p.add_argument("--share", action="store_true",
+                   help="all workers work on one study at a time (default: each worker takes whole studies)")
     p.add_argument("--out", type=Path, default=Path("results"), help="results root folder (default results/)")
     p.set_defaults(handler=run_batch_command)
 
@@ -29,10 +32,13 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "study's budget is met. Writes no results folder (run or batch does).")
     p.add_argument("files", type=Path, nargs="+", metavar="FILE")
     p.add_argument("--storage", default=None,
-                   help="database URL or journal file (default: the study's journal under --out)")
+                   help="database URL or journal file (default: $OPTMATCH_STORAGE, else the study's journal "
+                        "under --out)")
     p.add_argument("--out", type=Path, default=Path("results"), help="results root holding the journals")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.add_argument("--parent-pid", type=int, default=None, help=argparse.SUPPRESS)
+    p.add_argument("--batch-events", action="store_true", help=argparse.SUPPRESS)  # a helper of `batch`
+    p.add_argument("--share", action="store_true", help=argparse.SUPPRESS)
     p.set_defaults(handler=run_worker_command)
 
     p = sub.add_parser("report", help="write the batch report (HTML and markdown) over a results folder",
@@ -57,6 +63,7 @@ def _quiet_optuna() -> None:
 
 def run_batch_command(args: argparse.Namespace) -> int:
     from optmatch.running.batch import BatchListener, StudyEntry, run_batch
+    from optmatch.running.storage_url import from_environment
 
     _quiet_optuna()
     err = console(stderr=True)
@@ -88,6 +95,8 @@ def run_batch_command(args: argparse.Namespace) -> int:
                                                         status=_budget(entry.time_budget_s))
 
         def study_progress(self, entry: StudyEntry, done: int, total: int, best: float | None) -> None:
+            if entry.name not in self.tasks:
+                return
             status = f"best {best:+.2f} dB" if best is not None else _budget(entry.time_budget_s)
             self.prog.update(self.tasks[entry.name], completed=min(done, total), status=status)
             self.done[entry.name] = min(done, total)
@@ -112,7 +121,8 @@ def run_batch_command(args: argparse.Namespace) -> int:
 
     display = Display()
     try:
-        entries = run_batch(args.folder, args.out, args.storage, args.workers, display)
+        entries = run_batch(args.folder, args.out, from_environment(args.storage), args.workers, display,
+                            share=args.share)
     finally:
         display.stop()
     _closing_table(entries, args.out)
@@ -133,13 +143,21 @@ def _closing_table(entries: list, out: Path) -> None:
 
 
 def run_worker_command(args: argparse.Namespace) -> int:
-    from optmatch.running.worker import join_files, stop_with_parent
+    from optmatch.running.storage_url import from_environment
+    from optmatch.running.worker import JsonLineEvents, StudyWorker, join_files, stop_with_parent
 
     _quiet_optuna()
     if args.parent_pid is not None:
         stop_with_parent(args.parent_pid)
+    storage = from_environment(args.storage)
+    if args.batch_events:  # a helper of `batch`: take whole studies, tell the parent on stdout
+        from optmatch.running.batch import read_entries
+
+        studies = [e.study for e in read_entries(list(args.files)) if e.study is not None]
+        StudyWorker(studies, args.out, storage, args.share, JsonLineEvents(sys.stdout)).run()
+        return 0
     if args.quiet:
-        results = join_files(args.files, args.storage, args.out)
+        results = join_files(args.files, storage, args.out)
     else:
         with progress() as prog:
             tasks: dict[str, object] = {}
@@ -150,7 +168,7 @@ def run_worker_command(args: argparse.Namespace) -> int:
                 status = f"best {best:+.2f} dB" if best is not None else ""
                 prog.update(tasks[name], completed=min(done, total), total=total, status=status)
 
-            results = join_files(args.files, args.storage, args.out, report)
+            results = join_files(args.files, storage, args.out, report)
     failed = False
     for r in results:
         if r.error:

@@ -1,0 +1,396 @@
+"""The journal file: optuna's journal storage over a file backend of our own.
+
+optuna's ``JournalStorage`` replays a log of operations; this module supplies the log (a
+:class:`JournalFile`, optuna's public ``BaseJournalBackend`` interface) and adds what the plain file
+backend lacks:
+
+* **Integrity.**  Every record we write ends in ``"optmatch_seq":[n,crc]``: its line number in the
+  file and a CRC-32 of the number and the record.  Reading checks both, so a record deleted, moved
+  or altered in the middle of the file is refused, naming the line, and the file is left exactly
+  as it was.  Records without the field (journals written before it existed) are accepted only
+  before the first numbered one.
+* **Torn tail.**  A last line without its newline is a write cut short by a kill.  It is moved to
+  ``<journal>.torn`` and cut off, at open and before every append, so new records never glue onto it.
+* **Write failures.**  A failed append (disk full, ``File too large``) is cut back off the file and
+  raised as one :class:`StorageError` naming the journal; the trials finished so far stay intact.
+* **Lock.**  Writers take ``<journal>.lock`` (created exclusively, holding the owner's host and
+  pid).  A lock left by a process of this host that has ended is broken at once; a lock of another
+  host, or of unknown owner, is broken once older than :data:`LOCK_STALE_S`; both are reported
+  with one note on stderr.  A live holder on this host is waited for, with one note after
+  :data:`LOCK_REPORT_S`.
+* **Heartbeat.**  optuna has no heartbeat for the journal; :class:`WatchedJournalStorage` records
+  the owner of each running trial and a beat (see :mod:`optmatch.running.storage_base`).
+
+Durability: a record that creates a study or finishes a trial is flushed to disk (fsync) before the
+call returns, with every record before it; other records (new trials, parameters, attributes,
+beats) reach the disk with the next flushed one.  A killed process loses nothing that was written;
+a power cut can lose at most the trials still running, which are then run again.
+"""
+
+from __future__ import annotations
+
+import errno
+import fcntl
+import json
+import os
+import time
+import warnings
+import zlib
+from collections.abc import Callable, Iterator
+from pathlib import Path
+from typing import Any
+
+import optuna
+from optuna.storages import JournalStorage
+from optuna.storages.journal import BaseJournalBackend
+from optuna.trial import FrozenTrial, TrialState
+
+from optmatch.running.optuna_adapter import HeartbeatHooks, trial_id
+from optmatch.running.storage_base import (
+    GRACE_S,
+    HEARTBEAT_S,
+    HOST,
+    RecordsOwner,
+    RetryStaleTrial,
+    StorageError,
+    notice,
+    owner_gone,
+    owner_record,
+    trial_is_stale,
+)
+
+JOURNAL_NAME = "search.journal"
+TORN_SUFFIX = ".torn"
+LOCK_SUFFIX = ".lock"
+LOCK_STALE_S = 10.0   # a lock of another host (or of unknown owner) older than this is broken
+LOCK_REPORT_S = 10.0  # waiting this long for a live holder is reported once
+SEQ_FIELD = b',"optmatch_seq":['
+CREATE_STUDY, SET_TRIAL_STATE = 0, 6   # optuna's journal operation codes
+FINISHED_STATES = {1, 2, 3}            # COMPLETE, PRUNED, FAIL
+
+
+def journal_path(folder: Path) -> Path:
+    return Path(folder) / JOURNAL_NAME
+
+
+def _damaged(path: Path, line: int, what: str) -> StorageError:
+    return StorageError(f"{path}: line {line}: {what}; the file is left as it is. Move it aside to start "
+                        f"this study afresh, or restore it from a copy")
+
+
+def _finishes(record: dict) -> bool:
+    """Whether a record creates a study or finishes a trial: those are flushed to disk at once."""
+    op = record.get("op_code")
+    return op == CREATE_STUDY or (op == SET_TRIAL_STATE and record.get("state") in FINISHED_STATES)
+
+
+# ---------------------------------------------------------------- lock
+
+
+class JournalLock:
+    """Exclusive lock file ``<journal>.lock`` holding its owner (see the module notes)."""
+
+    def __init__(self, journal: Path) -> None:
+        self.journal = Path(journal)
+        self.path = Path(str(journal) + LOCK_SUFFIX)
+
+    def __enter__(self) -> JournalLock:
+        self.acquire()
+        return self
+
+    def __exit__(self, *exc: Any) -> None:
+        self.release()
+
+    def acquire(self) -> None:
+        started = time.monotonic()
+        reported = False
+        pause_s = 0.001
+        owner = json.dumps(owner_record()).encode()
+        while True:
+            try:
+                fd = os.open(self.path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
+            except FileExistsError:
+                stale = self._stale()
+                if stale is not None:
+                    self._break(*stale)
+                    continue
+                if not reported and time.monotonic() - started > LOCK_REPORT_S:
+                    notice(f"{self.path}: waiting for the journal lock held by {self._holder_text()}")
+                    reported = True
+                time.sleep(pause_s)
+                pause_s = min(2 * pause_s, 0.05)
+                continue
+            except OSError as exc:
+                raise StorageError(f"{self.path}: cannot take the journal lock ({exc.strerror or exc})") from None
+            try:
+                os.write(fd, owner)
+            finally:
+                os.close(fd)
+            return
+
+    def release(self) -> None:
+        try:
+            os.unlink(self.path)
+        except FileNotFoundError:
+            notice(f"{self.path}: the journal lock was removed by another process while held here")
+
+    def _read(self) -> tuple[os.stat_result, bytes] | None:
+        try:
+            with open(self.path, "rb") as fh:
+                return os.fstat(fh.fileno()), fh.read(4096)
+        except FileNotFoundError:
+            return None
+
+    @staticmethod
+    def _owner(content: bytes) -> dict | None:
+        try:
+            owner = json.loads(content)
+        except ValueError:
+            return None
+        return owner if isinstance(owner, dict) else None
+
+    def _holder_text(self) -> str:
+        seen = self._read()
+        owner = self._owner(seen[1]) if seen else None
+        if owner is None:
+            return "an unknown process"
+        return f"process {owner.get('pid')} on {owner.get('host')}"
+
+    def _stale(self) -> tuple[os.stat_result, bytes, str] | None:
+        """(stat, content, why) of a lock to break, or None to keep waiting."""
+        seen = self._read()
+        if seen is None:
+            return None
+        st, content = seen
+        owner = self._owner(content)
+        if owner is not None and owner_gone(owner):
+            return st, content, f"left by process {owner.get('pid')}, which has ended"
+        if owner is not None and owner.get("host") == HOST:
+            return None  # a live process of this machine holds it: wait
+        age = time.time() - st.st_mtime
+        if age > LOCK_STALE_S:
+            who = f"process {owner.get('pid')} on {owner.get('host')}" if owner else "an unknown process"
+            return st, content, f"held by {who} for {age:.0f} s, more than {LOCK_STALE_S:.0f} s"
+        return None
+
+    def _break(self, st: os.stat_result, content: bytes, why: str) -> None:
+        """Remove the lock file seen as ``st``/``content``, unless another process replaced it meanwhile.
+        Breakers serialise on an advisory lock of the journal itself, so two never remove a fresh lock."""
+        with open(self.journal, "ab") as guard:
+            fcntl.flock(guard.fileno(), fcntl.LOCK_EX)
+            again = self._read()
+            if again is None:
+                return
+            st2, content2 = again
+            if (st2.st_ino, st2.st_mtime_ns, content2) != (st.st_ino, st.st_mtime_ns, content):
+                return
+            os.unlink(self.path)
+        notice(f"{self.path}: stale journal lock {why}; removed it")
+
+
+# ---------------------------------------------------------------- the file
+
+
+class JournalFile(BaseJournalBackend):
+    """The journal file with numbered, checksummed records (see the module notes)."""
+
+    def __init__(self, path: Path) -> None:
+        self.path = Path(path)
+        self.lock = JournalLock(self.path)
+        self._offsets: dict[int, int] = {0: 0}   # line number -> byte offset of its start
+        self._first_numbered: int | None = None  # line of the first numbered record seen
+        try:
+            with open(self.path, "ab"):
+                pass
+            with self.lock:
+                self._end = self._check_whole_file()
+        except OSError as exc:
+            raise StorageError(f"{self.path}: cannot open the journal ({exc.strerror or exc})") from None
+
+    # -------------------------------------------------------------- reading
+
+    def _decode(self, raw: bytes, line: int) -> dict:
+        """The record on 0-based ``line`` (its bytes end in a newline); raises for a damaged one."""
+        at = raw.rfind(SEQ_FIELD)
+        if at >= 0 and raw.endswith(b"]}\n"):
+            try:
+                seq_text, crc_text = raw[at + len(SEQ_FIELD):-3].split(b",")
+                seq, crc = int(seq_text), int(crc_text)
+            except ValueError:
+                raise _damaged(self.path, line + 1, "its sequence field is unreadable") from None
+            body = raw[:at] + b"}"
+            if zlib.crc32(b"%d:" % seq + body) != crc:
+                raise _damaged(self.path, line + 1, "the record was altered (checksum mismatch)")
+            if seq > line:
+                raise _damaged(self.path, line + 1, f"{seq - line} record(s) missing before it "
+                                                    f"(it is record {seq + 1})")
+            if seq < line:
+                raise _damaged(self.path, line + 1, f"a record repeated or out of order (it is record {seq + 1})")
+            if self._first_numbered is None or line < self._first_numbered:
+                self._first_numbered = line
+        else:
+            body = raw
+            if self._first_numbered is not None and line > self._first_numbered:
+                raise _damaged(self.path, line + 1, "a record without its sequence number")
+        try:
+            record = json.loads(body)
+        except ValueError:
+            raise _damaged(self.path, line + 1, "not a journal record") from None
+        if not isinstance(record, dict) or "op_code" not in record:
+            raise _damaged(self.path, line + 1, "not a journal record")
+        return record
+
+    def _lines(self, start_line: int, start_offset: int) -> Iterator[tuple[int, int, dict]]:
+        """(line, offset after it, record) of each whole line from ``start_line``; stops at a
+        line without its newline (still being written, or torn)."""
+        with open(self.path, "rb") as fh:
+            fh.seek(start_offset)
+            line, offset = start_line, start_offset
+            for raw in fh:
+                if not raw.endswith(b"\n"):
+                    return
+                offset += len(raw)
+                yield line, offset, self._decode(raw, line)
+                line += 1
+
+    def _check_whole_file(self) -> tuple[int, int]:
+        """Check every record (the lock is held); set a torn tail aside. Returns (bytes, lines)."""
+        good, lines = 0, 0
+        for line, offset, _ in self._lines(0, 0):
+            good, lines = offset, line + 1
+        size = self.path.stat().st_size
+        if size > good:
+            self._set_aside_tail(good)
+        return good, lines
+
+    def _set_aside_tail(self, good: int) -> None:
+        """Move the bytes after ``good`` (a write cut short) to ``<journal>.torn``; the lock is held."""
+        with open(self.path, "rb") as fh:
+            fh.seek(good)
+            tail = fh.read()
+        with open(str(self.path) + TORN_SUFFIX, "ab") as side:
+            side.write(tail + b"\n")
+            side.flush()
+            os.fsync(side.fileno())
+        with open(self.path, "r+b") as fh:
+            fh.truncate(good)
+            fh.flush()
+            os.fsync(fh.fileno())
+        notice(f"{self.path}: an unfinished last record ({len(tail)} bytes, from a write cut short) was "
+               f"moved to {self.path.name}{TORN_SUFFIX}")
+
+    def read_logs(self, log_number_from: int) -> Iterator[dict[str, Any]]:
+        start = log_number_from if log_number_from in self._offsets else 0
+        for line, offset, record in self._lines(start, self._offsets[start]):
+            self._offsets[line + 1] = offset
+            if line >= log_number_from:
+                record.pop("optmatch_seq", None)
+                yield record
+
+    # -------------------------------------------------------------- writing
+
+    def _encode(self, record: dict, seq: int) -> bytes:
+        body = json.dumps(record, separators=(",", ":")).encode()
+        if body == b"{}":
+            raise ValueError("empty journal record")
+        crc = zlib.crc32(b"%d:" % seq + body)
+        return body[:-1] + SEQ_FIELD + b"%d,%d]}\n" % (seq, crc)
+
+    def _catch_up(self) -> tuple[int, int]:
+        """(bytes, lines) of the file now, counting records other processes added; the lock is held."""
+        known_size, known_lines = self._end
+        size = self.path.stat().st_size
+        if size < known_size:
+            raise StorageError(f"{self.path}: the journal shrank while in use (from {known_size} to {size} bytes); "
+                               f"another program changed it. Stop every run of this study and check the file")
+        if size == known_size:
+            return known_size, known_lines
+        with open(self.path, "rb") as fh:
+            fh.seek(known_size)
+            added = fh.read(size - known_size)
+        if not added.endswith(b"\n"):  # a writer was killed mid-record
+            whole = added.rfind(b"\n") + 1
+            self._set_aside_tail(known_size + whole)
+            added = added[:whole]
+        return known_size + len(added), known_lines + added.count(b"\n")
+
+    def append_logs(self, logs: list[dict[str, Any]]) -> None:
+        with self.lock:
+            try:
+                size, lines = self._catch_up()
+                data = b"".join(self._encode(rec, lines + k) for k, rec in enumerate(logs))
+                flush = any(_finishes(rec) for rec in logs)
+            except OSError as exc:
+                raise self._write_error(exc) from None
+            try:
+                with open(self.path, "ab") as fh:
+                    fh.write(data)
+                    fh.flush()
+                    if flush:
+                        os.fsync(fh.fileno())
+            except OSError as exc:
+                self._cut_back(size)
+                raise self._write_error(exc) from None
+            self._end = (size + len(data), lines + len(logs))
+
+    def _cut_back(self, size: int) -> None:
+        """Remove a partly written append (best effort; a torn tail is also repaired later)."""
+        try:
+            with open(self.path, "r+b") as fh:
+                fh.truncate(size)
+        except OSError:
+            pass
+
+    def _write_error(self, exc: OSError) -> StorageError:
+        reason = exc.strerror or str(exc)
+        hint = ""
+        if exc.errno in (errno.EFBIG, errno.ENOSPC, errno.EDQUOT):
+            hint = "; free space or raise the file size limit, then run again to resume"
+        return StorageError(f"{self.path}: cannot write the journal ({reason}); the trials finished so far "
+                            f"are kept{hint}")
+
+
+# ---------------------------------------------------------------- the storage
+
+
+class WatchedJournalStorage(RecordsOwner, HeartbeatHooks, JournalStorage):
+    """optuna's journal storage with a heartbeat and dead-owner detection (see the module notes)."""
+
+    def __init__(self, backend: JournalFile, heartbeat_s: int = HEARTBEAT_S, grace_s: float = GRACE_S,
+                 stale_callback: Callable[[optuna.Study, FrozenTrial], None] | None = None) -> None:
+        super().__init__(backend)
+        self.path = backend.path
+        self.heartbeat_s = heartbeat_s
+        self.grace_s = grace_s
+        self.stale_callback = stale_callback if stale_callback is not None else RetryStaleTrial()
+
+    def record_heartbeat(self, trial_id: int) -> None:
+        if self.owner_beat_due(trial_id):
+            self.record_owner(trial_id)
+
+    def stale_trial_ids(self, study_id: int) -> list[int]:
+        now = time.time()
+        running = self.get_all_trials(study_id, deepcopy=False, states=(TrialState.RUNNING,))
+        return [trial_id(t) for t in running if trial_is_stale(t, self.grace_s, now)]
+
+
+def open_journal(path: Path) -> WatchedJournalStorage:
+    """The journal storage in file ``path`` (created if absent), checked and repaired first."""
+    path = Path(path)
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise StorageError(f"{path.parent}: cannot create the folder ({exc.strerror or exc})") from None
+    backend = JournalFile(path)
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", optuna.exceptions.ExperimentalWarning)
+            return WatchedJournalStorage(backend)
+    except StorageError:
+        raise
+    except Exception as exc:  # optuna raises several kinds for a journal it cannot replay
+        raise StorageError(f"{path}: journal cannot be read ({exc.__class__.__name__}: {exc})") from None
+
+
+__all__ = ["JOURNAL_NAME", "LOCK_STALE_S", "JournalFile", "JournalLock", "WatchedJournalStorage", "journal_path",
+           "open_journal"]
