@@ -365,8 +365,12 @@ class WatchedJournalStorage(RecordsOwner, HeartbeatHooks, JournalStorage):
         self.stale_callback = stale_callback if stale_callback is not None else RetryStaleTrial()
 
     def record_heartbeat(self, trial_id: int) -> None:
-        if self.owner_beat_due(trial_id):
+        if not self.owner_beat_due(trial_id):
+            return
+        try:
             self.record_owner(trial_id)
+        except StorageError:
+            pass  # a beat runs on optuna's thread: the trial's own next write reports the failure
 
     def stale_trial_ids(self, study_id: int) -> list[int]:
         now = time.time()

@@ -53,9 +53,12 @@ class WatchedDatabaseStorage(RecordsOwner, adapter.DatabaseStaleHook, RDBStorage
     host is seen at once instead of after the grace period."""
 
     def record_heartbeat(self, trial_id: int) -> None:
-        super().record_heartbeat(trial_id)
-        if self.owner_beat_due(trial_id):
-            self.record_owner(trial_id)
+        try:
+            super().record_heartbeat(trial_id)
+            if self.owner_beat_due(trial_id):
+                self.record_owner(trial_id)
+        except Exception:
+            pass  # a beat runs on optuna's thread: the trial's own next write reports the failure
 
     def stale_trial_ids(self, study_id: int) -> list[int]:
         stale = set(adapter.rdb_stale_trial_ids(self, study_id))

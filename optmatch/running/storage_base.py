@@ -146,7 +146,7 @@ class RecordsOwner:
     def create_new_trial(self, study_id: int, template_trial: FrozenTrial | None = None) -> int:
         owned = False
         if template_trial is None:
-            now = datetime.datetime.now(tz=datetime.timezone.utc)
+            now = datetime.datetime.now()  # local and naive, as optuna's own (the 5.x journal converts it to UTC)
             template_trial = FrozenTrial(
                 number=-1, state=TrialState.RUNNING, value=None, datetime_start=now, datetime_complete=None,
                 params={}, distributions={}, user_attrs={}, system_attrs={OWNER_KEY: owner_record()},

@@ -59,6 +59,9 @@ class StudyClock:
     def __init__(self, ost: optuna.Study) -> None:
         self.ost = ost
         self.mark = time.time()
+        # a study begun before the clock existed counts its complete trials' durations
+        done = ost.get_trials(deepcopy=False, states=(TrialState.COMPLETE,))
+        self.earlier_s = sum((t.duration.total_seconds() for t in done if t.duration is not None), 0.0)
 
     def _record(self) -> tuple[float, float]:
         rec = self.ost.user_attrs.get(TIME_KEY)
@@ -67,9 +70,7 @@ class StudyClock:
                 return float(rec["spent_s"]), float(rec["at"])
             except (KeyError, TypeError, ValueError):
                 pass
-        # a study begun before the clock existed: its complete trials' durations
-        done = self.ost.get_trials(deepcopy=False, states=(TrialState.COMPLETE,))
-        return sum((t.duration.total_seconds() for t in done if t.duration is not None), 0.0), 0.0
+        return self.earlier_s, 0.0
 
     def spent_s(self) -> float:
         """Seconds spent on the study so far, this process's time since its last addition included."""
