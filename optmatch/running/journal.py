@@ -13,11 +13,11 @@ backend lacks:
   ``<journal>.torn`` and cut off, at open and before every append, so new records never glue onto it.
 * **Write failures.**  A failed append (disk full, ``File too large``) is cut back off the file and
   raised as one :class:`StorageError` naming the journal; the trials finished so far stay intact.
-* **Lock.**  Writers take ``<journal>.lock`` (created exclusively, holding the owner's host and
-  pid).  A lock left by a process of this host that has ended is broken at once; a lock of another
-  host, or of unknown owner, is broken once older than :data:`LOCK_STALE_S`; both are reported
-  with one note on stderr.  A live holder on this host is waited for, with one note after
-  :data:`LOCK_REPORT_S`.
+* **Lock.**  Writers take an advisory lock (``flock``) on the journal file itself.  The kernel drops
+  it when its holder ends, however it ends, so a killed process never leaves a lock behind and
+  nothing stalls; a live holder that keeps it longer than :data:`LOCK_REPORT_S` is reported once,
+  naming its pid.  The lock file ``<journal>.lock`` of optuna's file backend (used by earlier
+  versions) is no longer needed: one older than :data:`LOCK_STALE_S` is removed with a note.
 * **Heartbeat.**  optuna has no heartbeat for the journal; :class:`WatchedJournalStorage` records
   the owner of each running trial and a beat (see :mod:`optmatch.running.storage_base`).
 
@@ -54,16 +54,14 @@ from optmatch.running.storage_base import (
     RetryStaleTrial,
     StorageError,
     notice,
-    owner_gone,
-    owner_record,
     trial_is_stale,
 )
 
 JOURNAL_NAME = "search.journal"
 TORN_SUFFIX = ".torn"
-LOCK_SUFFIX = ".lock"
-LOCK_STALE_S = 10.0   # a lock of another host (or of unknown owner) older than this is broken
-LOCK_REPORT_S = 10.0  # waiting this long for a live holder is reported once
+OLD_LOCK_SUFFIX = ".lock"  # the lock file of optuna's file backend (and of earlier optmatch versions)
+LOCK_STALE_S = 10.0        # an old lock file older than this is removed, with a note
+LOCK_REPORT_S = 10.0       # waiting this long for the lock is reported once, naming the holder
 SEQ_FIELD = b',"optmatch_seq":['
 CREATE_STUDY, SET_TRIAL_STATE = 0, 6   # optuna's journal operation codes
 FINISHED_STATES = {1, 2, 3}            # COMPLETE, PRUNED, FAIL
@@ -88,11 +86,11 @@ def _finishes(record: dict) -> bool:
 
 
 class JournalLock:
-    """Exclusive lock file ``<journal>.lock`` holding its owner (see the module notes)."""
+    """The writers' lock: an advisory ``flock`` on the journal file itself (see the module notes)."""
 
     def __init__(self, journal: Path) -> None:
         self.journal = Path(journal)
-        self.path = Path(str(journal) + LOCK_SUFFIX)
+        self._fd: int | None = None
 
     def __enter__(self) -> JournalLock:
         self.acquire()
@@ -102,90 +100,80 @@ class JournalLock:
         self.release()
 
     def acquire(self) -> None:
+        try:
+            fd = os.open(self.journal, os.O_RDWR | os.O_CREAT | os.O_CLOEXEC, 0o644)
+        except OSError as exc:
+            raise StorageError(f"{self.journal}: cannot open the journal ({exc.strerror or exc})") from None
+        try:
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except BlockingIOError:
+                self._wait(fd)
+        except BaseException:
+            os.close(fd)
+            raise
+        self._fd = fd
+
+    def _wait(self, fd: int) -> None:
         started = time.monotonic()
-        reported = False
         pause_s = 0.001
-        owner = json.dumps(owner_record()).encode()
         while True:
+            time.sleep(pause_s)
+            pause_s = min(2 * pause_s, 0.05)
             try:
-                fd = os.open(self.path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
-            except FileExistsError:
-                stale = self._stale()
-                if stale is not None:
-                    self._break(*stale)
-                    continue
-                if not reported and time.monotonic() - started > LOCK_REPORT_S:
-                    notice(f"{self.path}: waiting for the journal lock held by {self._holder_text()}")
-                    reported = True
-                time.sleep(pause_s)
-                pause_s = min(2 * pause_s, 0.05)
-                continue
-            except OSError as exc:
-                raise StorageError(f"{self.path}: cannot take the journal lock ({exc.strerror or exc})") from None
-            try:
-                os.write(fd, owner)
-            finally:
-                os.close(fd)
-            return
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                return
+            except BlockingIOError:
+                pass
+            if started is not None and time.monotonic() - started > LOCK_REPORT_S:
+                notice(f"{self.journal}: waiting for the journal lock, held by {self.holder()} for more than "
+                       f"{LOCK_REPORT_S:.0f} s")
+                started = None  # once
 
     def release(self) -> None:
+        if self._fd is not None:
+            os.close(self._fd)  # closing drops the lock
+            self._fd = None
+
+    def holder(self) -> str:
+        """Who holds the lock, as far as the kernel's lock table says (Linux ``/proc/locks``)."""
         try:
-            os.unlink(self.path)
-        except FileNotFoundError:
-            notice(f"{self.path}: the journal lock was removed by another process while held here")
+            inode = os.stat(self.journal).st_ino
+            table = Path("/proc/locks").read_text()
+        except OSError:
+            return "another process"
+        for row in table.splitlines():
+            fields = row.split()
+            if len(fields) > 5 and fields[1] == "FLOCK" and fields[5].rsplit(":", 1)[-1] == str(inode):
+                return f"process {fields[4]} on {HOST}"
+        return "another process"
 
-    def _read(self) -> tuple[os.stat_result, bytes] | None:
-        try:
-            with open(self.path, "rb") as fh:
-                return os.fstat(fh.fileno()), fh.read(4096)
-        except FileNotFoundError:
-            return None
 
-    @staticmethod
-    def _owner(content: bytes) -> dict | None:
-        try:
-            owner = json.loads(content)
-        except ValueError:
-            return None
-        return owner if isinstance(owner, dict) else None
-
-    def _holder_text(self) -> str:
-        seen = self._read()
-        owner = self._owner(seen[1]) if seen else None
-        if owner is None:
-            return "an unknown process"
-        return f"process {owner.get('pid')} on {owner.get('host')}"
-
-    def _stale(self) -> tuple[os.stat_result, bytes, str] | None:
-        """(stat, content, why) of a lock to break, or None to keep waiting."""
-        seen = self._read()
-        if seen is None:
-            return None
-        st, content = seen
-        owner = self._owner(content)
-        if owner is not None and owner_gone(owner):
-            return st, content, f"left by process {owner.get('pid')}, which has ended"
-        if owner is not None and owner.get("host") == HOST:
-            return None  # a live process of this machine holds it: wait
-        age = time.time() - st.st_mtime
-        if age > LOCK_STALE_S:
-            who = f"process {owner.get('pid')} on {owner.get('host')}" if owner else "an unknown process"
-            return st, content, f"held by {who} for {age:.0f} s, more than {LOCK_STALE_S:.0f} s"
-        return None
-
-    def _break(self, st: os.stat_result, content: bytes, why: str) -> None:
-        """Remove the lock file seen as ``st``/``content``, unless another process replaced it meanwhile.
-        Breakers serialise on an advisory lock of the journal itself, so two never remove a fresh lock."""
-        with open(self.journal, "ab") as guard:
-            fcntl.flock(guard.fileno(), fcntl.LOCK_EX)
-            again = self._read()
-            if again is None:
-                return
-            st2, content2 = again
-            if (st2.st_ino, st2.st_mtime_ns, content2) != (st.st_ino, st.st_mtime_ns, content):
-                return
-            os.unlink(self.path)
-        notice(f"{self.path}: stale journal lock {why}; removed it")
+def remove_old_lock_file(journal: Path) -> None:
+    """Remove ``<journal>.lock``, the lock file of older versions (unused now), once it is older than
+    :data:`LOCK_STALE_S`: a younger one may belong to an older version still writing."""
+    old = Path(str(journal) + OLD_LOCK_SUFFIX)
+    try:
+        age = time.time() - old.stat().st_mtime
+    except OSError:
+        return
+    if age <= LOCK_STALE_S:
+        return
+    content = b""
+    try:
+        content = old.read_bytes()[:4096]
+        old.unlink()
+    except OSError:
+        return
+    who = ""
+    try:
+        owner = json.loads(content)
+        if isinstance(owner, dict) and "pid" in owner:
+            who = f" by process {owner['pid']} on {owner.get('host')}"
+    except ValueError:
+        pass
+    notice(f"{old}: stale journal lock file left{who} {age:.0f} s ago (more than {LOCK_STALE_S:.0f} s) by an "
+           f"older version; this version no longer uses it; removed it")
 
 
 # ---------------------------------------------------------------- the file
@@ -202,6 +190,7 @@ class JournalFile(BaseJournalBackend):
         try:
             with open(self.path, "ab"):
                 pass
+            remove_old_lock_file(self.path)
             with self.lock:
                 self._end = self._check_whole_file()
         except OSError as exc:
@@ -396,5 +385,5 @@ def open_journal(path: Path) -> WatchedJournalStorage:
         raise StorageError(f"{path}: journal cannot be read ({exc.__class__.__name__}: {exc})") from None
 
 
-__all__ = ["JOURNAL_NAME", "LOCK_STALE_S", "JournalFile", "JournalLock", "WatchedJournalStorage", "journal_path",
-           "open_journal"]
+__all__ = ["JOURNAL_NAME", "LOCK_REPORT_S", "LOCK_STALE_S", "JournalFile", "JournalLock", "WatchedJournalStorage",
+           "journal_path", "open_journal", "remove_old_lock_file"]
