@@ -54,6 +54,15 @@ def _budget(seconds: float | None) -> str:
     return f"budget {int(seconds) // 60}:{int(seconds) % 60:02d}"
 
 
+def _warn_if_password_on_command_line(given: str | None) -> None:
+    """A password typed after --storage is in the shell's process list: say how to keep it out."""
+    from optmatch.running.storage_url import ENV_STORAGE, has_password
+
+    if given and has_password(given):
+        print(f"optmatch: note: the password given with --storage shows in the process list of this "
+              f"machine; put the URL in the {ENV_STORAGE} environment variable instead", file=sys.stderr)
+
+
 def _quiet_optuna() -> None:
     """optuna logs an interrupted trial with a traceback; the command prints its own one line."""
     import optuna
@@ -66,6 +75,7 @@ def run_batch_command(args: argparse.Namespace) -> int:
     from optmatch.running.storage_url import from_environment
 
     _quiet_optuna()
+    _warn_if_password_on_command_line(args.storage)
     err = console(stderr=True)
 
     class Display(BatchListener):
@@ -149,6 +159,7 @@ def run_worker_command(args: argparse.Namespace) -> int:
     _quiet_optuna()
     if args.parent_pid is not None:
         stop_with_parent(args.parent_pid)
+    _warn_if_password_on_command_line(args.storage)
     storage = from_environment(args.storage)
     if args.batch_events:  # a helper of `batch`: take whole studies, tell the parent on stdout
         from optmatch.running.batch import read_entries

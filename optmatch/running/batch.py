@@ -9,8 +9,9 @@ results folders itself (:class:`~optmatch.running.worker.StudyWorker`).  Workers
 when fewer studies than workers remain, or with ``share``.
 
 Helpers tell this process what they do as JSON lines on their stdout; this process alone writes
-``batch.json`` (the state of every study, atomically) and the batch report, after every study that
-ends, so a partial night still leaves a report.  A rerun skips studies whose results are complete
+``batch.json`` (the state of every study, atomically) after every study that ends, and the batch
+report at the start, at the end and at most every :data:`REPORT_EVERY_S` in between, so a partial
+night still leaves a report.  A rerun skips studies whose results are complete
 and resumes the others from their storage; each resumed study gets only the time left of its time
 budget.
 
@@ -43,6 +44,7 @@ from optmatch.studyfile.loader import Study, StudyFileError, load_study
 STATE_NAME = "batch.json"
 STUDY_SUFFIXES = (".yaml", ".yml")
 HELPER_STOP_S = 30.0
+REPORT_EVERY_S = 30.0  # while studies end, the report is rewritten at most this often (batch.json always)
 
 
 class BatchError(OptmatchError):
@@ -151,14 +153,16 @@ class Batch(Events):
         self.helpers: list[subprocess.Popen] = []
         self._readers: list[threading.Thread] = []
         self._lock = threading.RLock()
+        self._reported = time.monotonic()
 
     def _entry(self, name: str) -> StudyEntry | None:
         return next((e for e in self.entries if e.name == name and e.study is not None), None)
 
     # -------------------------------------------------------------- state and report
 
-    def save_state(self) -> None:
-        """Write ``batch.json`` and the report (HTML and markdown) over the results root."""
+    def save_state(self, report: bool = True) -> None:
+        """Write ``batch.json``, and the report (HTML and markdown) over the results root when
+        ``report`` or when the last one is :data:`REPORT_EVERY_S` old."""
         with self._lock:
             self.out_root.mkdir(parents=True, exist_ok=True)
             write_json_atomic(self.out_root / STATE_NAME, {
@@ -166,7 +170,9 @@ class Batch(Events):
                 "storage": shown(self.storage_url) if self.storage_url else "journal per study",
                 "workers": self.workers, "updated": time.strftime("%Y-%m-%d %H:%M:%S"),
                 "studies": [e.as_dict() for e in self.entries]})
-            write_report(self.out_root)
+            if report or time.monotonic() - self._reported >= REPORT_EVERY_S:
+                write_report(self.out_root)
+                self._reported = time.monotonic()
 
     # -------------------------------------------------------------- events (any worker, any thread)
 
@@ -196,7 +202,7 @@ class Batch(Events):
             entry.trials_complete = int(result.get("trials_complete") or 0)
             entry.elapsed_s = float(result.get("elapsed_s") or 0.0)
             self.listener.study_finished(entry)
-            self.save_state()
+            self.save_state(report=False)
 
     # -------------------------------------------------------------- helpers
 

@@ -21,10 +21,11 @@ backend lacks:
 * **Heartbeat.**  optuna has no heartbeat for the journal; :class:`WatchedJournalStorage` records
   the owner of each running trial and a beat (see :mod:`optmatch.running.storage_base`).
 
-Durability: a record that creates a study or finishes a trial is flushed to disk (fsync) before the
-call returns, with every record before it; other records (new trials, parameters, attributes,
-beats) reach the disk with the next flushed one.  A killed process loses nothing that was written;
-a power cut can lose at most the trials still running, which are then run again.
+Durability: a record that creates a study or finishes a trial makes a background thread flush the
+file to disk (fsync) at once, with every record before it, so the trial loop never waits for the
+disk.  A killed process loses nothing that was written (the records are in the kernel's cache); a
+power cut can lose the trials still running and those finished in the last moment before it, which
+are then run again.
 """
 
 from __future__ import annotations
@@ -33,6 +34,7 @@ import errno
 import fcntl
 import json
 import os
+import threading
 import time
 import warnings
 import zlib
@@ -179,12 +181,50 @@ def remove_old_lock_file(journal: Path) -> None:
 # ---------------------------------------------------------------- the file
 
 
+class _Flusher:
+    """Flushes the journal to disk (fsync) on a background thread soon after it is asked to, so the
+    trial loop never waits for the disk; the thread ends when idle and starts again on demand."""
+
+    IDLE_S = 5.0
+
+    def __init__(self, path: Path) -> None:
+        self.path = path
+        self.wanted = threading.Event()
+        self.guard = threading.Lock()
+        self.thread: threading.Thread | None = None
+
+    def request(self) -> None:
+        with self.guard:
+            self.wanted.set()
+            if self.thread is None or not self.thread.is_alive():
+                self.thread = threading.Thread(target=self._run, name="optmatch-journal-flush", daemon=True)
+                self.thread.start()
+
+    def _run(self) -> None:
+        while True:
+            if not self.wanted.wait(self.IDLE_S):
+                with self.guard:
+                    if not self.wanted.is_set():
+                        self.thread = None
+                        return
+            self.wanted.clear()
+            try:
+                fd = os.open(self.path, os.O_RDONLY | os.O_CLOEXEC)
+                try:
+                    os.fsync(fd)
+                finally:
+                    os.close(fd)
+            except OSError:
+                pass  # the next append reports a journal that cannot be written
+
+
 class JournalFile(BaseJournalBackend):
     """The journal file with numbered, checksummed records (see the module notes)."""
 
     def __init__(self, path: Path) -> None:
         self.path = Path(path)
         self.lock = JournalLock(self.path)
+        self._flusher = _Flusher(self.path)
         self._offsets: dict[int, int] = {0: 0}   # line number -> byte offset of its start
         self._first_numbered: int | None = None  # line of the first numbered record seen
         try:
@@ -315,12 +355,12 @@ class JournalFile(BaseJournalBackend):
                 with open(self.path, "ab") as fh:
                     fh.write(data)
                     fh.flush()
-                    if flush:
-                        os.fsync(fh.fileno())
             except OSError as exc:
                 self._cut_back(size)
                 raise self._write_error(exc) from None
             self._end = (size + len(data), lines + len(logs))
+        if flush:
+            self._flusher.request()
 
     def _cut_back(self, size: int) -> None:
         """Remove a partly written append (best effort; a torn tail is also repaired later)."""

@@ -62,6 +62,11 @@ def _passwords(url: str) -> list[str]:
     return sorted({p for p in found if p}, key=len, reverse=True)
 
 
+def has_password(url: str) -> bool:
+    """Whether a database URL carries a password (in its user part or its query)."""
+    return is_url(url) and bool(_passwords(url))
+
+
 def shown(url: str) -> str:
     """``url`` without its secrets, for messages and files (a journal path is shown as it is)."""
     if not is_url(url):
@@ -108,4 +113,5 @@ def quoting_hint(url: str) -> str:
     return ""
 
 
-__all__ = ["ENV_STORAGE", "check_url", "from_environment", "is_url", "quoting_hint", "scrub", "shown"]
+__all__ = ["ENV_STORAGE", "check_url", "from_environment", "has_password", "is_url", "quoting_hint", "scrub",
+           "shown"]
