@@ -255,3 +255,40 @@ def test_a_second_batch_on_a_busy_results_root_is_refused(tmp_path: Path) -> Non
     with held, pytest.raises(BatchError, match=f"a batch is already running there: process {os.getpid()}"):
         run_batch(folder, out)
     assert not (out / "batch.json").exists()
+
+
+def test_ctrl_c_stops_every_worker_and_a_rerun_finishes_exactly_the_budgets(tmp_path: Path) -> None:
+    folder, out = tmp_path / "studies", tmp_path / "out"
+    folder.mkdir()
+    studies = [load_study(write_study(folder, f"c{k}", trials=30)) for k in range(3)]
+    # a session of its own, so that SIGINT goes to the batch and its helper at once, as Ctrl-C does
+    proc = subprocess.Popen([sys.executable, "-m", "optmatch", "batch", str(folder), "--out", str(out),
+                             "--workers", "2"], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+                            start_new_session=True)
+
+    def helper_busy() -> bool:
+        return any(_claim_holder(out / s.problem.name) not in (None, proc.pid)
+                   and len(_complete_now(s, journal_path(out / s.problem.name))) >= 1 for s in studies)
+
+    try:
+        _wait_for(helper_busy, proc, "a study taken by the helper")
+        os.killpg(proc.pid, signal.SIGINT)
+        _, stderr = proc.communicate(timeout=300)
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+            proc.wait()
+    assert proc.returncode == 130, stderr
+    assert "Traceback" not in stderr
+    state = json.loads((out / "batch.json").read_text())
+    assert "running" not in {s["status"] for s in state["studies"]}
+    assert "interrupted" in {s["status"] for s in state["studies"]}
+
+    rerun = batch(folder, out, "--workers", "2")
+
+    assert rerun.returncode == 0, rerun.stderr
+    for s in studies:
+        assert len(complete_trials(s, open_journal(journal_path(out / s.problem.name)))) == 30
+        summary = json.loads((out / s.problem.name / "summary.json").read_text())
+        # Pozar 4th ed. Example 5.2 (recalled from memory): an exact single-stub match exists.
+        assert summary["search"]["trials_complete"] == 30 and summary["verdict"] == "PASS"

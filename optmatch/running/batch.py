@@ -288,13 +288,13 @@ class Batch(Events):
             if e.study is not None:
                 remove_orphan_temp_files(results_dir(e.study, self.out_root), only_targets=REPORT_TARGETS)
         todo = self._todo()
-        with self._lock:  # helpers' events wait until the listener has seen the batch start
-            if any(not _looks_done(s, self.out_root) for s in todo):
-                self._start_helpers(self.workers - 1)  # first: a helper takes a second or two to start
-            self.listener.batch_started(self.entries)
-            self.save_state()
         finished = False
         try:
+            with self._lock:  # helpers' events wait until the listener has seen the batch start
+                if any(not _looks_done(s, self.out_root) for s in todo):
+                    self._start_helpers(self.workers - 1)  # first: a helper takes a second or two to start
+                self.listener.batch_started(self.entries)
+                self.save_state()
             StudyWorker(todo, self.out_root, self.storage_url, self.share, self).run()
             self._stop_helpers(interrupt=False)
             # A helper that ended early (killed, or a bug: see workers/*.log) left its studies' claims

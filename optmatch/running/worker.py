@@ -30,7 +30,7 @@ from optmatch.running.claims import claim_study
 from optmatch.running.results import results_dir, write_results
 from optmatch.running.search import enqueue_seeds, open_study, run_search, study_seeds
 from optmatch.running.storage import fail_stale, open_storage
-from optmatch.running.storage_url import scrub
+from optmatch.running.storage_url import is_url, scrub
 from optmatch.studyfile.loader import Study, StudyFileError, load_study
 
 PARENT_POLL_S = 1.0
@@ -131,9 +131,18 @@ class StudyWorker:
         self.storage_url = storage_url
         self.share = share
         self.events = events or Events()
+        self._database: BaseStorage | None = None
 
     def _folder(self, study: Study) -> Path:
         return results_dir(study, self.out_root)
+
+    def _storage_for(self, study: Study) -> BaseStorage:
+        """The study's storage: its journal, or the one database connection this worker keeps."""
+        if self.storage_url is not None and is_url(self.storage_url):
+            if self._database is None:
+                self._database = open_storage(self.storage_url, self._folder(study))
+            return self._database
+        return open_storage(self.storage_url, self._folder(study))
 
     def _message(self, exc: BaseException) -> str:
         return scrub(" ".join(str(exc).split()) or type(exc).__name__, self.storage_url)
@@ -170,7 +179,7 @@ class StudyWorker:
         name = study.problem.name
         folder = self._folder(study)
         try:
-            storage = open_storage(self.storage_url, folder)
+            storage = self._storage_for(study)
             ost = prepare(study, storage)
             before = finished_before(study, folder, ost)
             if before is not None:
@@ -192,8 +201,8 @@ class StudyWorker:
         """Add trials to ``study``, which another process runs, until no slot of its budget is left."""
         name = study.problem.name
         try:
-            storage = open_storage(self.storage_url, self._folder(study))
-            run_search(study, storage, progress=lambda d, t, b: self.events.progress(name, d, t, b), owner=False)
+            run_search(study, self._storage_for(study), progress=lambda d, t, b: self.events.progress(name, d, t, b),
+                       owner=False)
         except (OptmatchError, ValueError, OSError) as exc:
             print(f"optmatch: error: helping {name}: {self._message(exc)}", file=sys.stderr, flush=True)
 
