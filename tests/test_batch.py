@@ -209,7 +209,7 @@ def test_a_second_run_of_a_running_study_is_refused_naming_the_process(tmp_path:
 def test_two_workers_take_whole_studies_and_survive_a_killed_helper(tmp_path: Path) -> None:
     folder, out = tmp_path / "studies", tmp_path / "out"
     folder.mkdir()
-    studies = [load_study(write_study(folder, f"s{k}", trials=30)) for k in range(4)]
+    studies = [load_study(write_study(folder, f"s{k}", trials=30)) for k in range(5)]  # outlasts the helper's start
     proc = subprocess.Popen([sys.executable, "-m", "optmatch", "batch", str(folder), "--out", str(out),
                              "--workers", "2"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
 
@@ -233,7 +233,7 @@ def test_two_workers_take_whole_studies_and_survive_a_killed_helper(tmp_path: Pa
             proc.wait()
     assert proc.returncode == 0, stderr
     state = json.loads((out / "batch.json").read_text())
-    assert {s["name"]: s["status"] for s in state["studies"]} == {f"s{k}": "done" for k in range(4)}
+    assert {s["name"]: s["status"] for s in state["studies"]} == {f"s{k}": "done" for k in range(5)}
     owners: set[int] = set()
     for s, entry in zip(studies, state["studies"], strict=True):
         summary = json.loads((out / s.problem.name / "summary.json").read_text())
@@ -260,7 +260,7 @@ def test_a_second_batch_on_a_busy_results_root_is_refused(tmp_path: Path) -> Non
 def test_ctrl_c_stops_every_worker_and_a_rerun_finishes_exactly_the_budgets(tmp_path: Path) -> None:
     folder, out = tmp_path / "studies", tmp_path / "out"
     folder.mkdir()
-    studies = [load_study(write_study(folder, f"c{k}", trials=30)) for k in range(3)]
+    studies = [load_study(write_study(folder, f"c{k}", trials=30)) for k in range(4)]  # outlasts the helper's start
     # a session of its own, so that SIGINT goes to the batch and its helper at once, as Ctrl-C does
     proc = subprocess.Popen([sys.executable, "-m", "optmatch", "batch", str(folder), "--out", str(out),
                              "--workers", "2"], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
