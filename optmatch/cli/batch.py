@@ -7,6 +7,7 @@ import sys
 from pathlib import Path
 
 from optmatch.cli.terminal import console, progress, table
+from optmatch.outputs.document import passes
 
 EXIT_FAILS_MASK = 1
 EXIT_ERRORS = 2
@@ -20,7 +21,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--workers", type=int, default=1,
                    help="processes working on the studies on this machine (default 1)")
     p.add_argument("--storage", default=None,
-                   help="database URL shared with other machines (default: a journal file per study)")
+                   help="database URL shared with other machines (default: $OPTMATCH_STORAGE, else a journal "
+                        "file per study); the environment keeps a password off the command line")
+    p.add_argument("--share", action="store_true",
+                   help="all workers work on one study at a time (default: each worker takes whole studies)")
     p.add_argument("--out", type=Path, default=Path("results"), help="results root folder (default results/)")
     p.set_defaults(handler=run_batch_command)
 
@@ -29,10 +33,13 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "study's budget is met. Writes no results folder (run or batch does).")
     p.add_argument("files", type=Path, nargs="+", metavar="FILE")
     p.add_argument("--storage", default=None,
-                   help="database URL or journal file (default: the study's journal under --out)")
+                   help="database URL or journal file (default: $OPTMATCH_STORAGE, else the study's journal "
+                        "under --out)")
     p.add_argument("--out", type=Path, default=Path("results"), help="results root holding the journals")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.add_argument("--parent-pid", type=int, default=None, help=argparse.SUPPRESS)
+    p.add_argument("--batch-events", action="store_true", help=argparse.SUPPRESS)  # a helper of `batch`
+    p.add_argument("--share", action="store_true", help=argparse.SUPPRESS)
     p.set_defaults(handler=run_worker_command)
 
     p = sub.add_parser("report", help="write the batch report (HTML and markdown) over a results folder",
@@ -48,6 +55,15 @@ def _budget(seconds: float | None) -> str:
     return f"budget {int(seconds) // 60}:{int(seconds) % 60:02d}"
 
 
+def _warn_if_password_on_command_line(given: str | None) -> None:
+    """A password typed after --storage is in the shell's process list: say how to keep it out."""
+    from optmatch.running.storage_url import ENV_STORAGE, has_password
+
+    if given and has_password(given):
+        print(f"optmatch: note: the password given with --storage shows in the process list of this "
+              f"machine; put the URL in the {ENV_STORAGE} environment variable instead", file=sys.stderr)
+
+
 def _quiet_optuna() -> None:
     """optuna logs an interrupted trial with a traceback; the command prints its own one line."""
     import optuna
@@ -57,8 +73,10 @@ def _quiet_optuna() -> None:
 
 def run_batch_command(args: argparse.Namespace) -> int:
     from optmatch.running.batch import BatchListener, StudyEntry, run_batch
+    from optmatch.running.storage_url import from_environment
 
     _quiet_optuna()
+    _warn_if_password_on_command_line(args.storage)
     err = console(stderr=True)
 
     class Display(BatchListener):
@@ -88,6 +106,8 @@ def run_batch_command(args: argparse.Namespace) -> int:
                                                         status=_budget(entry.time_budget_s))
 
         def study_progress(self, entry: StudyEntry, done: int, total: int, best: float | None) -> None:
+            if entry.name not in self.tasks:
+                return
             status = f"best {best:+.2f} dB" if best is not None else _budget(entry.time_budget_s)
             self.prog.update(self.tasks[entry.name], completed=min(done, total), status=status)
             self.done[entry.name] = min(done, total)
@@ -112,13 +132,14 @@ def run_batch_command(args: argparse.Namespace) -> int:
 
     display = Display()
     try:
-        entries = run_batch(args.folder, args.out, args.storage, args.workers, display)
+        entries = run_batch(args.folder, args.out, from_environment(args.storage), args.workers, display,
+                            share=args.share)
     finally:
         display.stop()
     _closing_table(entries, args.out)
     if any(e.status != "done" for e in entries):
         return EXIT_ERRORS
-    return EXIT_FAILS_MASK if any(e.verdict == "FAIL" for e in entries) else 0
+    return EXIT_FAILS_MASK if any(not passes(e.verdict) for e in entries) else 0
 
 
 def _closing_table(entries: list, out: Path) -> None:
@@ -133,13 +154,22 @@ def _closing_table(entries: list, out: Path) -> None:
 
 
 def run_worker_command(args: argparse.Namespace) -> int:
-    from optmatch.running.worker import join_files, stop_with_parent
+    from optmatch.running.storage_url import from_environment
+    from optmatch.running.worker import JsonLineEvents, StudyWorker, join_files, stop_with_parent
 
     _quiet_optuna()
     if args.parent_pid is not None:
         stop_with_parent(args.parent_pid)
+    _warn_if_password_on_command_line(args.storage)
+    storage = from_environment(args.storage)
+    if args.batch_events:  # a helper of `batch`: take whole studies, tell the parent on stdout
+        from optmatch.running.batch import read_entries
+
+        studies = [e.study for e in read_entries(list(args.files)) if e.study is not None]
+        StudyWorker(studies, args.out, storage, args.share, JsonLineEvents(sys.stdout)).run()
+        return 0
     if args.quiet:
-        results = join_files(args.files, args.storage, args.out)
+        results = join_files(args.files, storage, args.out)
     else:
         with progress() as prog:
             tasks: dict[str, object] = {}
@@ -150,7 +180,7 @@ def run_worker_command(args: argparse.Namespace) -> int:
                 status = f"best {best:+.2f} dB" if best is not None else ""
                 prog.update(tasks[name], completed=min(done, total), total=total, status=status)
 
-            results = join_files(args.files, args.storage, args.out, report)
+            results = join_files(args.files, storage, args.out, report)
     failed = False
     for r in results:
         if r.error:

@@ -8,6 +8,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 import tempfile
 from collections.abc import Callable
 from pathlib import Path
@@ -34,6 +35,39 @@ def _write_atomic(path: str | os.PathLike, mode: str, fill: Callable[[IO], None]
         Path(tmp).unlink(missing_ok=True)
         raise
     return p
+
+
+# mkstemp names: "." + target name + "." + 8 random characters + suffix (".tmp", or a figure's own)
+_TEMP_NAME = re.compile(r"^\.(?P<target>.+)\.[A-Za-z0-9_]{8}(?P<suffix>\.[A-Za-z0-9]+)$")
+
+
+def remove_orphan_temp_files(folder: str | os.PathLike, keep_targets: frozenset[str] = frozenset(),
+                             only_targets: frozenset[str] | None = None) -> list[Path]:
+    """Remove the temporary files that writes killed before their rename left in ``folder``: those
+    for ``only_targets`` (default: any file) except ``keep_targets``; returns what was removed.
+
+    Call it only while no other process writes into ``folder``: a live write's file looks the same.
+    """
+    removed: list[Path] = []
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return removed
+    for entry in entries:
+        match = _TEMP_NAME.match(entry.name)
+        if match is None or not entry.is_file(follow_symlinks=False):
+            continue
+        target, suffix = match.group("target"), match.group("suffix")
+        if target in keep_targets or (only_targets is not None and target not in only_targets):
+            continue
+        if suffix not in (".tmp", Path(target).suffix):
+            continue
+        try:
+            os.unlink(entry.path)
+        except OSError:
+            continue
+        removed.append(Path(entry.path))
+    return removed
 
 
 def write_text_atomic(path: str | os.PathLike, text: str) -> Path:

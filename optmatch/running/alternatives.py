@@ -41,11 +41,12 @@ def _combined(parts: Sequence[tuple[str, SearchOutcome]], keep: int) -> Compared
         distinct=ranked, parts=tuple(parts))
 
 
-def search_study(study: Study, storage: BaseStorage | str, progress: ProgressFn | None = None) -> SearchOutcome:
+def search_study(study: Study, storage: BaseStorage | str, progress: ProgressFn | None = None,
+                 owner: bool = True) -> SearchOutcome:
     """Run (or resume) the search of a study: its one network, or each alternative in turn (then a
     :class:`Compared`).  ``progress`` sees the trials of all alternatives as one count."""
     if not study.alternatives:
-        return run_search(study, storage, progress=progress)
+        return run_search(study, storage, progress=progress, owner=owner)
     per = study.search.trials
     total = per * len(study.alternatives)
     best: list[float] = []
@@ -58,7 +59,7 @@ def search_study(study: Study, storage: BaseStorage | str, progress: ProgressFn 
             so_far = [*best, *([margin] if margin is not None else [])]
             progress(base + min(done, per), total, max(so_far) if so_far else None)
 
-        outcome = run_search(alt.study, storage, progress=report)
+        outcome = run_search(alt.study, storage, progress=report, owner=owner)
         if outcome.designs:
             best.append(outcome.designs[0].margin_db)
         parts.append((alt.name, outcome))

@@ -1,14 +1,22 @@
-"""Run every study file of a folder, resumably, with optional helper processes.
+"""Run every study file of a folder, resumably, with several worker processes.
 
-Order of work: every study file is read first (a broken one is recorded with its one-line error
-and the others go on); every good study is opened in its storage, its stale trials are failed and
-queued again, and its closed-form seeds are queued if it is new.  Then ``workers - 1`` helper
-processes (``optmatch worker``) start on the same list of files and this process works through it
-too; several processes share each study's storage, and the budget counts complete trials in the
-storage, so a rerun after an interruption continues where the last one stopped.
+Order of work: the batch takes the results root (``<out>/.batch.lock``; a second batch there is
+refused, naming the first), removes the temporary files killed writes left there, and reads every
+study file (a broken one is recorded with its one-line error and the others go on).  Then
+``workers - 1`` helper processes (``optmatch worker --batch-events``) start on the same files and
+this process works through them too: each worker takes whole studies, runs them and writes their
+results folders itself (:class:`~optmatch.running.worker.StudyWorker`).  Workers share a study only
+when fewer studies than workers remain, or with ``share``.
 
-After each study this process writes its results folder, ``batch.json`` (the state of every study)
-and the batch report, so a partial night still leaves a report.
+Helpers tell this process what they do as JSON lines on their stdout; this process alone writes
+``batch.json`` (the state of every study, atomically) after every study that ends, and the batch
+report at the start, at the end and at most every :data:`REPORT_EVERY_S` in between, so a partial
+night still leaves a report.  A rerun skips studies whose results are complete
+and resumes the others from their storage; each resumed study gets only the time left of its time
+budget.
+
+The storage URL reaches helpers through their environment (never their command line), and
+``batch.json`` names it without its password.
 """
 
 from __future__ import annotations
@@ -19,30 +27,29 @@ import re
 import signal
 import subprocess
 import sys
+import threading
 import time
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
-import optuna
-from optuna.storages import BaseStorage
-
 from optmatch.errors import OptmatchError
-from optmatch.io.atomic import write_json_atomic
-from optmatch.outputs.report import write_report
-from optmatch.running.alternatives import search_study
-from optmatch.running.results import results_dir, write_results
-from optmatch.running.search import enqueue_seeds, open_study, study_seeds
-from optmatch.running.storage import fail_stale, is_url, live_running, open_database, open_storage
+from optmatch.io.atomic import remove_orphan_temp_files, write_json_atomic
+from optmatch.outputs.report import REPORT_HTML, REPORT_MD, write_report
+from optmatch.running.claims import BATCH_CLAIM, REPORT_TARGETS, holder, try_claim
+from optmatch.running.results import results_dir
+from optmatch.running.storage import StorageError, open_database
+from optmatch.running.storage_url import ENV_STORAGE, is_url, scrub, shown
+from optmatch.running.worker import Events, StudyWorker, prepare, replay_event
 from optmatch.studyfile.loader import Study, StudyFileError, load_study
 
 STATE_NAME = "batch.json"
 STUDY_SUFFIXES = (".yaml", ".yml")
-HELPER_POLL_S = 0.2
 HELPER_STOP_S = 30.0
+REPORT_EVERY_S = 30.0  # while studies end, the report is rewritten at most this often (batch.json always)
 
 
 class BatchError(OptmatchError):
-    """The batch as a whole cannot run (no study files, unreachable shared storage)."""
+    """The batch as a whole cannot run (no study files, unreachable shared storage, results root busy)."""
 
 
 @dataclass
@@ -71,7 +78,8 @@ class StudyEntry:
 
 
 class BatchListener:
-    """Receives the batch's events (the command line shows them; the default ignores them)."""
+    """Receives the batch's events (the command line shows them; the default ignores them).
+    Events from helper processes arrive on other threads, one at a time."""
 
     def batch_started(self, entries: list[StudyEntry]) -> None: ...
 
@@ -121,107 +129,120 @@ def read_entries(files: list[Path]) -> list[StudyEntry]:
     return entries
 
 
-def _complete_count(ost: optuna.Study) -> int:
-    return len(ost.get_trials(deepcopy=False, states=(optuna.trial.TrialState.COMPLETE,)))
-
-
-def _finished_before(entry: StudyEntry, folder: Path, ost: optuna.Study) -> bool:
-    """Results already written for these inputs and for every complete trial in the storage."""
+def _looks_done(study: Study, out_root: Path) -> bool:
+    """Results written for these inputs with the whole trial budget (a cheap guess, no storage opened)."""
     try:
-        doc = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
-    except (OSError, ValueError):
+        doc = json.loads((results_dir(study, out_root) / "summary.json").read_text(encoding="utf-8"))
+        return doc["inputs_digest"] == study.digest and doc["search"]["trials_complete"] >= study.search.trials
+    except (OSError, ValueError, KeyError, TypeError):
         return False
-    assert entry.study is not None
-    if doc.get("inputs_digest") != entry.study.digest:
-        return False
-    if doc.get("search", {}).get("trials_complete") != _complete_count(ost):
-        return False
-    entry.verdict = doc.get("verdict")
-    entry.best_margin_db = doc.get("best_margin_db")
-    entry.trials_complete = doc["search"]["trials_complete"]
-    entry.elapsed_s = float(doc["search"].get("elapsed_s") or 0.0)
-    return True
 
 
-def prepare(study: Study, storage: BaseStorage) -> optuna.Study:
-    """Open ``study`` in ``storage``, fail and requeue its stale trials, queue seeds if it is new."""
-    ost = open_study(study, storage)
-    fail_stale(ost)
-    enqueue_seeds(ost, study.problem, study_seeds(study.problem), study.search.trials)
-    return ost
-
-
-class Batch:
+class Batch(Events):
     """One batch run over ``folder`` writing results under ``out_root``."""
 
     def __init__(self, folder: Path, out_root: Path, storage_url: str | None = None, workers: int = 1,
-                 listener: BatchListener | None = None) -> None:
+                 listener: BatchListener | None = None, share: bool = False) -> None:
         if workers < 1:
             raise BatchError(f"--workers: must be at least 1, got {workers}")
         self.folder = Path(folder)
         self.out_root = Path(out_root)
         self.storage_url = storage_url
         self.workers = workers
+        self.share = share
         self.listener = listener or BatchListener()
         self.entries: list[StudyEntry] = []
         self.helpers: list[subprocess.Popen] = []
-        self._storages: dict[str, BaseStorage] = {}
-        self._shared: BaseStorage | None = None
+        self._readers: list[threading.Thread] = []
+        self._lock = threading.RLock()
+        self._reported = time.monotonic()
+
+    def _entry(self, name: str) -> StudyEntry | None:
+        return next((e for e in self.entries if e.name == name and e.study is not None), None)
 
     # -------------------------------------------------------------- state and report
 
-    def save_state(self) -> None:
-        """Write ``batch.json`` and the report (HTML and markdown) over the results root."""
-        self.out_root.mkdir(parents=True, exist_ok=True)
-        write_json_atomic(self.out_root / STATE_NAME, {
-            "folder": str(self.folder), "storage": self.storage_url or "journal per study",
-            "workers": self.workers, "updated": time.strftime("%Y-%m-%d %H:%M:%S"),
-            "studies": [e.as_dict() for e in self.entries]})
-        write_report(self.out_root)
+    def save_state(self, report: bool = True) -> None:
+        """Write ``batch.json``, and the report (HTML and markdown) over the results root when
+        ``report`` or when the last one is :data:`REPORT_EVERY_S` old."""
+        with self._lock:
+            self.out_root.mkdir(parents=True, exist_ok=True)
+            write_json_atomic(self.out_root / STATE_NAME, {
+                "folder": str(self.folder),
+                "storage": shown(self.storage_url) if self.storage_url else "journal per study",
+                "workers": self.workers, "updated": time.strftime("%Y-%m-%d %H:%M:%S"),
+                "studies": [e.as_dict() for e in self.entries]})
+            if report or time.monotonic() - self._reported >= REPORT_EVERY_S:
+                write_report(self.out_root)
+                self._reported = time.monotonic()
 
-    # -------------------------------------------------------------- storage
+    # -------------------------------------------------------------- events (any worker, any thread)
 
-    def _storage_for(self, study: Study) -> BaseStorage:
-        if self.storage_url is not None and is_url(self.storage_url):
-            if self._shared is None:
-                self._shared = open_database(self.storage_url)
-            return self._shared
-        return open_storage(self.storage_url, results_dir(study, self.out_root))
+    def started(self, name: str) -> None:
+        with self._lock:
+            entry = self._entry(name)
+            if entry is None:
+                return
+            entry.status = "running"
+            self.listener.study_started(entry)
 
-    def _open(self, entry: StudyEntry) -> bool:
-        """Prepare one study; False if it needs no more work or cannot run."""
-        assert entry.study is not None
-        try:
-            storage = self._storage_for(entry.study)
-            ost = prepare(entry.study, storage)
-        except OptmatchError as exc:
-            if self.storage_url is not None and is_url(self.storage_url):
-                raise BatchError(" ".join(str(exc).split())) from None
-            entry.status, entry.message = "error", " ".join(str(exc).split())
-            return False
-        self._storages[entry.name] = storage
-        if _finished_before(entry, results_dir(entry.study, self.out_root), ost):
-            entry.status, entry.message = "done", "results already complete"
-            return False
-        return True
+    def progress(self, name: str, done: int, total: int, best: float | None) -> None:
+        with self._lock:
+            entry = self._entry(name)
+            if entry is not None and entry.status == "running":
+                self.listener.study_progress(entry, min(done, total), total, best)
+
+    def finished(self, name: str, result: dict) -> None:
+        with self._lock:
+            entry = self._entry(name)
+            if entry is None or entry.status in ("done", "error"):
+                return  # a worker found results another worker had just written
+            entry.status = str(result.get("status", "error"))
+            entry.message = scrub(str(result.get("message", "")), self.storage_url)
+            entry.verdict = result.get("verdict")
+            entry.best_margin_db = result.get("best_margin_db")
+            entry.trials_complete = int(result.get("trials_complete") or 0)
+            entry.elapsed_s = float(result.get("elapsed_s") or 0.0)
+            self.listener.study_finished(entry)
+            self.save_state(report=False)
 
     # -------------------------------------------------------------- helpers
 
-    def _start_helpers(self, files: list[str]) -> None:
-        if self.workers < 2 or not files:
+    def _helper_command(self) -> list[str]:
+        """The helper's command line: study files and folders only, never the storage URL."""
+        cmd = [sys.executable, "-m", "optmatch", "worker", *[e.file for e in self.entries if e.study is not None],
+               "--out", str(self.out_root), "--parent-pid", str(os.getpid()), "--batch-events", "--quiet"]
+        return cmd + (["--share"] if self.share else [])
+
+    def _helper_env(self) -> dict[str, str]:
+        """The helper's environment: the storage URL, if any, travels here."""
+        env = dict(os.environ)
+        if self.storage_url is not None:
+            env[ENV_STORAGE] = self.storage_url
+        else:
+            env.pop(ENV_STORAGE, None)
+        return env
+
+    def _start_helpers(self, count: int) -> None:
+        if count < 1:
             return
         logs = self.out_root / "workers"
         logs.mkdir(parents=True, exist_ok=True)
-        cmd = [sys.executable, "-m", "optmatch", "worker", *files, "--out", str(self.out_root),
-               "--parent-pid", str(os.getpid()), "--quiet"]
-        if self.storage_url is not None:
-            cmd += ["--storage", self.storage_url]
-        for k in range(self.workers - 1):
+        cmd, env = self._helper_command(), self._helper_env()
+        for k in range(count):
             with open(logs / f"helper-{k + 1}.log", "ab") as log:
-                self.helpers.append(subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=log, stderr=log))
+                proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=log,
+                                        env=env, text=True)
+            self.helpers.append(proc)
+            reader = threading.Thread(target=self._read_events, args=(proc,), name=f"optmatch-helper-{k + 1}",
+                                      daemon=True)
+            reader.start()
+            self._readers.append(reader)
 
-    def _helpers_running(self) -> bool:
-        return any(p.poll() is None for p in self.helpers)
+    def _read_events(self, proc: subprocess.Popen) -> None:
+        assert proc.stdout is not None
+        for line in proc.stdout:
+            replay_event(line, self)
 
     def _stop_helpers(self, interrupt: bool) -> None:
         for p in self.helpers:
@@ -229,64 +250,66 @@ class Batch:
                 p.send_signal(signal.SIGINT)
         for p in self.helpers:
             try:
-                p.wait(timeout=HELPER_STOP_S)
+                p.wait(timeout=HELPER_STOP_S if interrupt else None)
             except subprocess.TimeoutExpired:
                 p.kill()
                 p.wait()
-
-    # -------------------------------------------------------------- one study
-
-    def _run_one(self, entry: StudyEntry) -> None:
-        study = entry.study
-        assert study is not None
-        storage = self._storages[entry.name]
-        entry.status = "running"
-        self.listener.study_started(entry)
-        self.save_state()
-        start = time.monotonic()
-
-        def progress(done: int, total: int, best: float | None) -> None:
-            self.listener.study_progress(entry, done, total, best)
-
-        outcome = search_study(study, storage, progress=progress)
-        if self.helpers:
-            # A helper may still be finishing a trial of this study: let it land in the results.
-            ost = open_study(study, storage)
-            while live_running(ost) and self._helpers_running():
-                time.sleep(HELPER_POLL_S)
-            outcome = search_study(study, storage)
-        elapsed = time.monotonic() - start
-        outcome = replace(outcome, elapsed_s=elapsed)
-        _, doc = write_results(study, outcome, self.out_root)
-        entry.status = "done"
-        entry.verdict = doc.verdict
-        entry.best_margin_db = doc.best_margin_db
-        entry.trials_complete = outcome.trials_complete
-        entry.elapsed_s = elapsed
+        for reader in self._readers:
+            reader.join(timeout=HELPER_STOP_S)
 
     # -------------------------------------------------------------- the whole batch
 
+    def _check_shared_storage(self) -> None:
+        """A database must answer before any worker starts (one clear error instead of one per study)."""
+        if self.storage_url is None or not is_url(self.storage_url):
+            return
+        try:
+            open_database(self.storage_url)
+        except StorageError as exc:
+            raise BatchError(scrub(" ".join(str(exc).split()), self.storage_url)) from None
+
+    def _todo(self) -> list[Study]:
+        return [e.study for e in self.entries if e.study is not None and e.status in ("pending", "running")]
+
     def run(self) -> list[StudyEntry]:
         """Run the batch; returns every entry (``error`` entries carry their one-line message)."""
-        self.entries = read_entries(find_study_files(self.folder))
-        todo = [e for e in self.entries if e.status == "pending" and self._open(e)]
-        self.listener.batch_started(self.entries)
-        self.save_state()
-        self._start_helpers([e.file for e in todo])
+        files = find_study_files(self.folder)
+        self.out_root.mkdir(parents=True, exist_ok=True)
+        claim = try_claim(self.out_root / BATCH_CLAIM, f"batch {self.folder}")
+        if claim is None:
+            raise BatchError(f"{self.out_root}: a batch is already running there: "
+                             f"{holder(self.out_root / BATCH_CLAIM)}")
+        with claim:
+            return self._run(files)
+
+    def _run(self, files: list[Path]) -> list[StudyEntry]:
+        remove_orphan_temp_files(self.out_root, only_targets=frozenset({STATE_NAME, REPORT_HTML, REPORT_MD}))
+        self._check_shared_storage()
+        self.entries = read_entries(files)
+        for e in self.entries:
+            if e.study is not None:
+                remove_orphan_temp_files(results_dir(e.study, self.out_root), only_targets=REPORT_TARGETS)
+        todo = self._todo()
         finished = False
         try:
-            for entry in todo:
-                try:
-                    self._run_one(entry)
-                except (OptmatchError, ValueError, OSError) as exc:
-                    entry.status, entry.message = "error", " ".join(str(exc).split())
-                self.listener.study_finished(entry)
+            with self._lock:  # helpers' events wait until the listener has seen the batch start
+                if any(not _looks_done(s, self.out_root) for s in todo):
+                    self._start_helpers(self.workers - 1)  # first: a helper takes a second or two to start
+                self.listener.batch_started(self.entries)
                 self.save_state()
+            StudyWorker(todo, self.out_root, self.storage_url, self.share, self).run()
+            self._stop_helpers(interrupt=False)
+            # A helper that ended early (killed, or a bug: see workers/*.log) left its studies' claims
+            # free: take them over here, resuming from their storage.
+            left = self._todo()
+            if left:
+                StudyWorker(left, self.out_root, self.storage_url, self.share, self).run()
             finished = True
         except KeyboardInterrupt:
-            for e in self.entries:
-                if e.status == "running":
-                    e.status, e.message = "interrupted", "stopped by the user; a rerun resumes"
+            with self._lock:
+                for e in self.entries:
+                    if e.status == "running":
+                        e.status, e.message = "interrupted", "stopped by the user; a rerun resumes"
             raise
         finally:
             self._stop_helpers(interrupt=not finished)
@@ -295,9 +318,9 @@ class Batch:
 
 
 def run_batch(folder: Path, out_root: Path, storage_url: str | None = None, workers: int = 1,
-              listener: BatchListener | None = None) -> list[StudyEntry]:
+              listener: BatchListener | None = None, share: bool = False) -> list[StudyEntry]:
     """Run every study file in ``folder``; see :class:`Batch`."""
-    return Batch(folder, out_root, storage_url, workers, listener).run()
+    return Batch(folder, out_root, storage_url, workers, listener, share).run()
 
 
 __all__ = ["Batch", "BatchError", "BatchListener", "StudyEntry", "find_study_files", "prepare",

@@ -26,6 +26,7 @@ from optmatch.domain.optimise import inner_search, population_search
 from optmatch.domain.problem import Problem
 from optmatch.domain.seeds import Seed, closed_form_seeds
 from optmatch.domain.tolerance import Spread, design_yields, draw_errors, yield_scores
+from optmatch.running.trials import Limits, run_trials
 from optmatch.studyfile.loader import SearchSettings, Study
 
 optuna.logging.set_verbosity(optuna.logging.WARNING)
@@ -329,8 +330,13 @@ def run_search(
     storage: BaseStorage | str,
     progress: ProgressFn | None = None,
     use_seeds: bool = True,
+    owner: bool = True,
 ) -> SearchOutcome:
-    """Run (or resume) the study's search until its trial budget, time budget or target is reached."""
+    """Run (or resume) the study's search until its trial budget, time budget or target is reached.
+
+    ``owner``: this process writes the results and waits for trials other workers still run;
+    a helper (``owner=False``) leaves once every remaining trial slot is taken (see ``trials.py``).
+    """
     problem, settings = study.problem, study.search
     start_time = time.monotonic()
     seeds = study_seeds(problem) if use_seeds else []
@@ -338,30 +344,8 @@ def run_search(
     if use_seeds:
         enqueue_seeds(ost, problem, seeds, settings.trials)
     objective = make_objective(problem, settings, seeds, use_seeds, spread=study.spread)
-    stopped = {"early": False}
-
-    def tally() -> tuple[int, float | None]:
-        """Complete trials in the storage (every worker's) and the best margin among them."""
-        done = _complete(ost)
-        return len(done), max((t.values[0] for t in done), default=None)
-
-    def callback(st: optuna.Study, trial: optuna.trial.FrozenTrial) -> None:
-        n_done, best = tally()
-        if progress is not None:
-            progress(n_done, settings.trials, best)
-        if n_done >= settings.trials:
-            st.stop()
-        if settings.target_margin_db is not None and best is not None and best >= settings.target_margin_db:
-            stopped["early"] = True
-            st.stop()
-
-    n_done, best = tally()
-    remaining = settings.trials - n_done
-    if progress is not None:
-        progress(n_done, settings.trials, best)
-    if remaining > 0:
-        ost.optimize(objective, n_trials=remaining, timeout=settings.time_s, callbacks=[callback],
-                     catch=())
+    limits = Limits(settings.trials, settings.time_s, settings.target_margin_db)
+    stopped_early = run_trials(ost, objective, limits, progress=progress, owner=owner)
     designs, points = collect_designs(ost, problem, study.spread, settings.objective)
     complete = _complete(ost)
     evaluations = sum(int(t.user_attrs.get("evaluations", 0)) for t in complete)
@@ -374,7 +358,7 @@ def run_search(
         elapsed_s=time.monotonic() - start_time,
         trial_time_s=sum((t.duration.total_seconds() for t in complete if t.duration is not None), 0.0),
         seeds=seeds,
-        stopped_early=stopped["early"],
+        stopped_early=stopped_early,
         distinct=designs,
         ranked_by=settings.objective,
     )

@@ -1,0 +1,47 @@
+"""optuna's private API stays behind one adapter module, and it is still there in the installed optuna.
+
+A new optuna that renames or reshapes one of those names makes the first test fail with the exact
+name to look at; the others keep every other module off optuna's private names, and keep the pinned
+range in pyproject.toml in step with the adapter's tested range.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import optuna
+from packaging.specifiers import SpecifierSet
+from packaging.version import Version
+
+from optmatch.running import optuna_adapter
+
+ROOT = Path(__file__).resolve().parents[1]
+PRIVATE = re.compile(r"\._storage\b|\._study_id\b|\._trial_id\b|optuna\.storages\._|_get_stale_trial_ids|"
+                     r"\._lock_file\b|\._backend\b|\._replay_result\b")
+
+
+def test_the_private_names_the_adapter_uses_still_exist() -> None:
+    problems = optuna_adapter.private_api_problems()
+    assert problems == [], (
+        "optuna's private API changed under optmatch/running/optuna_adapter.py; adapt it (or pin optuna "
+        "below this version in pyproject.toml):\n  " + "\n  ".join(problems))
+
+
+def test_no_other_module_touches_optuna_private_names() -> None:
+    adapter = ROOT / "optmatch" / "running" / "optuna_adapter.py"
+    offenders = []
+    for path in sorted((ROOT / "optmatch").rglob("*.py")):
+        if path == adapter:
+            continue
+        for number, line in enumerate(path.read_text(encoding="utf-8").splitlines(), start=1):
+            if PRIVATE.search(line.split("#", 1)[0]):
+                offenders.append(f"{path.relative_to(ROOT)}:{number}: {line.strip()}")
+    assert offenders == [], "use optmatch.running.optuna_adapter instead:\n  " + "\n  ".join(offenders)
+
+
+def test_pyproject_pins_the_tested_range_and_the_installed_optuna_is_in_it() -> None:
+    text = (ROOT / "pyproject.toml").read_text(encoding="utf-8")
+    (pin,) = re.findall(r'"optuna([^"]*)"', text)
+    assert SpecifierSet(pin) == SpecifierSet(optuna_adapter.TESTED_OPTUNA)
+    assert Version(optuna.__version__) in SpecifierSet(pin), f"optuna {optuna.__version__} is outside {pin}"
