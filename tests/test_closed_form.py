@@ -13,13 +13,13 @@ from optmatch.domain.closed_form import (
     all_solutions,
     double_stub,
     double_stub_limit,
-    physical_length_m,
     quarter_wave,
     series_stub,
     shunt_stub,
     to_engine,
 )
 from optmatch.engine import evaluate
+from optmatch.units import length_views
 
 F0_HZ = 100e6
 
@@ -227,4 +227,4 @@ def test_active_load_and_bad_inputs():
 def test_physical_length():
     # free-space wavelength at 100 MHz is c/f = 2.998 m; with a velocity factor of 0.66 a quarter wave is
     # 0.4947 m (definition of wavelength and velocity factor; common practice, no source)
-    assert physical_length_m(0.25, 100e6, 0.66) == pytest.approx(0.4947, abs=1e-4)
+    assert length_views(0.25, 100e6, 0.66).m == pytest.approx(0.4947, abs=1e-4)

@@ -215,6 +215,30 @@ def test_templates_are_pure_and_reject_unknown_names():
         build_template("quad_stub", F_REF, (Medium(50.0),))
 
 
+def test_template_recipe_of_the_contributor_guide(tmp_path, monkeypatch):
+    # The guide's recipe, followed as written: a builder taking TemplateArgs, registered in TEMPLATES
+    # with the options it takes; the study file then names it, and options it does not take are refused.
+    from optmatch.domain import templates
+
+    def series_then_shunt(a: templates.TemplateArgs):
+        return (a.line(a.free, "line"), a.stub("series_stub", "series stub"), a.stub("shunt_stub", "shunt stub"))
+
+    monkeypatch.setitem(templates.TEMPLATES, "series_then_shunt",
+                        templates.Template(series_then_shunt, frozenset({"end", "max_length"})))
+    study = load_study(write(tmp_path, textwrap.dedent("""
+        load: {impedance: 60-j80}
+        network: {template: series_then_shunt, end: open, max_length: 0.4wl}
+        """) + MASK))
+    kinds = [e.kind for e in study.problem.network.elements]
+    assert kinds == ["line", "series_stub", "shunt_stub"]
+    assert all(e.end == "open" for e in study.problem.network.elements[1:])
+    problems = check_study(write(tmp_path, textwrap.dedent("""
+        load: {impedance: 60-j80}
+        network: {template: series_then_shunt, spacing: 45deg}
+        """) + MASK, name="s2.yaml"))
+    assert any("spacing: not an option of template series_then_shunt" in p for p in problems)
+
+
 # ------------------------------------------------------------------ explicit elements
 
 

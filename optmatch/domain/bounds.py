@@ -26,13 +26,6 @@ def chebyshev_bandwidth(z_load: float, z_sys: float, sections: int, gamma_max: f
     return 2.0 - 4.0 * theta_m / math.pi
 
 
-def chebyshev_gamma_max(z_load: float, z_sys: float, sections: int, fractional_bw: float) -> float:
-    """Passband ripple |Γ|max of the N-section Chebyshev transformer covering ``fractional_bw``."""
-    theta_m = math.pi / 4.0 * (2.0 - fractional_bw)
-    sec = 1.0 / math.cos(theta_m)
-    return abs(math.log(z_load / z_sys)) / (2.0 * math.cosh(sections * math.acosh(sec)))
-
-
 def chebyshev_exact_gamma_max(z_load: float, z_sys: float, sections: int, fractional_bw: float) -> float:
     """Exact passband ripple |Γ|max of the optimum N-section quarter-wave transformer over
     ``fractional_bw`` (commensurate lines, no small-reflection approximation).

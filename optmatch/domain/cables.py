@@ -7,7 +7,6 @@ same name (:func:`merge_catalogs`).
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 
@@ -65,33 +64,8 @@ class Cable:
                       z0_tol_rel=self.z0_tolerance_ohm / self.z0_ohm, vf_tol_rel=self.vf_tolerance / self.vf)
 
 
-def physical_length_m(delay_s: float, vf: float) -> float:
-    """Cable length (m) of a one-way ``delay_s`` at velocity factor ``vf``."""
-    from optmatch.units import C0
-
-    return delay_s * vf * C0
-
-
 def merge_catalogs(base: Mapping[str, Cable], extra: Mapping[str, Cable]) -> dict[str, Cable]:
     """``base`` extended by ``extra``; an entry of ``extra`` replaces one of the same name."""
     out = dict(base)
     out.update(extra)
     return out
-
-
-def conductor_share(cable: Cable | Medium, freq_hz: np.ndarray) -> np.ndarray:
-    """Share of the attenuation due to the conductors (the √f term), 0..1; 1 for a lossless line."""
-    if isinstance(cable, Cable):
-        kc, kd = cable.loss_coefficients
-    else:
-        kc, kd = cable.kc, cable.kd
-    f = np.asarray(freq_hz, dtype=float)
-    c, d = kc * np.sqrt(f), kd * f
-    total = c + d
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(total > 0, c / np.where(total > 0, total, 1.0), 1.0)
-
-
-def rms_to_peak(v_rms: float) -> float:
-    """Peak of a sine of ``v_rms``."""
-    return v_rms * math.sqrt(2.0)

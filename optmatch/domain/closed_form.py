@@ -387,8 +387,3 @@ def to_engine(solution: Solution, f0_hz: float) -> tuple[list[Stage], list[dict[
             p["short"] = e.end == "short"
         params.append(p)
     return stages, params
-
-
-def physical_length_m(length_wl: float, f0_hz: float, velocity_factor: float = 1.0) -> float:
-    """Physical length (m) of ``length_wl`` wavelengths at ``f0_hz`` on a cable of ``velocity_factor``."""
-    return float(length_wl) * float(velocity_factor) * SPEED_OF_LIGHT_M_PER_S / float(f0_hz)

@@ -7,16 +7,12 @@ Lengths come as :class:`LengthBound` (a :class:`Bound` in s for basis ``delay`` 
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Literal
 
 from optmatch.domain.network import Bound, ElementSpec, End, LengthBasis, Medium
 from optmatch.errors import OptmatchError
-
-TemplateName = Literal["single_shunt_stub", "single_series_stub", "double_stub", "triple_stub", "stepped_line"]
-TEMPLATES: tuple[str, ...] = (
-    "single_shunt_stub", "single_series_stub", "double_stub", "triple_stub", "stepped_line",
-)
 
 DEFAULT_SPACING_WL = 0.125  # stub spacing of double and triple stubs, wavelengths at the reference
 DEFAULT_MAX_LENGTH_WL = 0.5  # free lengths run from 0 to this, wavelengths at the reference
@@ -66,6 +62,73 @@ def _stub(kind: Literal["shunt_stub", "series_stub"], length: LengthBound, media
                        z0_free=z0_free, end=end, label=label)
 
 
+@dataclass(frozen=True)
+class TemplateArgs:
+    """What a template builder gets: the reference frequency (Hz), the line ``media`` (one = fixed,
+    several = a discrete choice), a free Z0 range instead (Ω), the stub ``end``, the stub ``spacing``,
+    the ``free`` length range of every free line and stub, and the stepped-line ``sections``."""
+
+    f_ref_hz: float
+    media: tuple[Medium, ...]
+    z0_free: Bound | None
+    end: End
+    spacing: LengthBound
+    free: LengthBound
+    sections: int
+
+    def line(self, length: LengthBound, label: str) -> ElementSpec:
+        return _line(length, self.media, self.z0_free, label)
+
+    def stub(self, kind: Literal["shunt_stub", "series_stub"], label: str) -> ElementSpec:
+        return _stub(kind, self.free, self.media, self.z0_free, self.end, label)
+
+
+Builder = Callable[[TemplateArgs], tuple[ElementSpec, ...]]
+
+
+@dataclass(frozen=True)
+class Template:
+    """A registered layout: its ``build`` function and the template options it takes beyond
+    ``z0``, ``vf`` and the shelf keys (``end``, ``spacing``, ``sections``, ``max_length``, ``stubs``)."""
+
+    build: Builder
+    options: frozenset[str]
+
+
+def _single(kind: Literal["shunt_stub", "series_stub"]) -> Builder:
+    return lambda a: (a.line(a.free, "line"), a.stub(kind, "stub"))
+
+
+def _stubs(count: int) -> Builder:
+    def build(a: TemplateArgs) -> tuple[ElementSpec, ...]:
+        out = [a.line(a.free, "load line"), a.stub("shunt_stub", "stub 1")]
+        for k in range(2, count + 1):
+            out += [a.line(a.spacing, f"spacing {k - 1}"), a.stub("shunt_stub", f"stub {k}")]
+        return tuple(out)
+
+    return build
+
+
+def _stepped(a: TemplateArgs) -> tuple[ElementSpec, ...]:
+    if a.sections < 1:
+        raise TemplateError(f"a stepped line needs at least one section, got {a.sections}")
+    quarter = wavelengths(0.25, a.f_ref_hz)
+    return tuple(a.line(quarter, f"section {k + 1}") for k in range(a.sections))
+
+
+_STUB_OPTIONS = frozenset({"end", "max_length", "stubs"})
+
+TEMPLATES: dict[str, Template] = {
+    "single_shunt_stub": Template(_single("shunt_stub"), _STUB_OPTIONS),
+    "single_series_stub": Template(_single("series_stub"), _STUB_OPTIONS),
+    "double_stub": Template(_stubs(2), _STUB_OPTIONS | {"spacing"}),
+    "triple_stub": Template(_stubs(3), _STUB_OPTIONS | {"spacing"}),
+    "stepped_line": Template(_stepped, frozenset({"sections"})),
+}
+"""Every template by name: its builder and the options it takes.  The study-file schema reads this
+registry, so a new entry is all a new template needs (then regenerate the editor schema)."""
+
+
 def build_template(
     name: str,
     f_ref_hz: float,
@@ -86,26 +149,11 @@ def build_template(
     """
     if f_ref_hz <= 0:
         raise TemplateError(f"reference frequency must be positive, got {f_ref_hz} Hz")
-    spacing = spacing or wavelengths(DEFAULT_SPACING_WL, f_ref_hz)
-    free = free_up_to(max_length or wavelengths(DEFAULT_MAX_LENGTH_WL, f_ref_hz))
-
-    def stub(kind: Literal["shunt_stub", "series_stub"], label: str) -> ElementSpec:
-        return _stub(kind, free, media, z0_free, end, label)
-
-    if name == "single_shunt_stub":
-        return (_line(free, media, z0_free, "line"), stub("shunt_stub", "stub"))
-    if name == "single_series_stub":
-        return (_line(free, media, z0_free, "line"), stub("series_stub", "stub"))
-    if name in ("double_stub", "triple_stub"):
-        n_stubs = 2 if name == "double_stub" else 3
-        out = [_line(free, media, z0_free, "load line"), stub("shunt_stub", "stub 1")]
-        for k in range(2, n_stubs + 1):
-            out.append(_line(spacing, media, z0_free, f"spacing {k - 1}"))
-            out.append(stub("shunt_stub", f"stub {k}"))
-        return tuple(out)
-    if name == "stepped_line":
-        if sections < 1:
-            raise TemplateError(f"a stepped line needs at least one section, got {sections}")
-        quarter = wavelengths(0.25, f_ref_hz)
-        return tuple(_line(quarter, media, z0_free, f"section {k + 1}") for k in range(sections))
-    raise TemplateError(f"unknown template {name!r} (choose from {', '.join(TEMPLATES)})")
+    template = TEMPLATES.get(name)
+    if template is None:
+        raise TemplateError(f"unknown template {name!r} (choose from {', '.join(TEMPLATES)})")
+    args = TemplateArgs(f_ref_hz=f_ref_hz, media=media, z0_free=z0_free, end=end,
+                        spacing=spacing or wavelengths(DEFAULT_SPACING_WL, f_ref_hz),
+                        free=free_up_to(max_length or wavelengths(DEFAULT_MAX_LENGTH_WL, f_ref_hz)),
+                        sections=sections)
+    return template.build(args)

@@ -20,10 +20,6 @@ from optmatch.domain.design import Performance
 from optmatch.domain.mask import Grid, Segment
 from optmatch.io.atomic import save_figure_atomic
 
-RETURN_LOSS_FILE = "return_loss.png"
-SMITH_FILE = "smith.png"
-PARETO_FILE = "pareto.png"
-
 FIGSIZE_IN = (8.0, 5.0)
 SMITH_FIGSIZE_IN = (11.0, 6.0)
 DPI = 120

@@ -581,14 +581,7 @@ class RoleModel(_Model):
 
 
 TEMPLATE_OPTIONS = ("z0", "vf", "end", "spacing", "sections", "max_length", *SHELF_KEYS, "lines", "stubs")
-STUB_TEMPLATES = ("single_shunt_stub", "single_series_stub", "double_stub", "triple_stub")
-_OPTION_TEMPLATES = {
-    "end": STUB_TEMPLATES,
-    "spacing": ("double_stub", "triple_stub"),
-    "sections": ("stepped_line",),
-    "max_length": STUB_TEMPLATES,
-    "stubs": STUB_TEMPLATES,
-}
+SPECIFIC_OPTIONS = ("end", "spacing", "sections", "max_length", "stubs")  # taken as each template's registry entry says
 
 
 def _positive_length(v: Length) -> Length:
@@ -634,7 +627,7 @@ class NetworkModel(_Model):
                                  "(set them on each element)")
         tpl = data.get("template")
         if isinstance(tpl, str) and tpl in TEMPLATES:
-            wrong = [k for k, allowed in _OPTION_TEMPLATES.items() if k in data and tpl not in allowed]
+            wrong = [k for k in SPECIFIC_OPTIONS if k in data and k not in TEMPLATES[tpl].options]
             if wrong:
                 raise ValueError(f"{', '.join(wrong)}: not an option of template {tpl}")
         return data
