@@ -23,6 +23,7 @@ from typing import Any, Literal, get_args
 
 import numpy as np
 from pydantic import BaseModel, TypeAdapter, ValidationError
+from pydantic_core import ErrorDetails
 
 from optmatch.domain import loads
 from optmatch.domain.cables import Cable
@@ -197,7 +198,7 @@ def _allowed_keys(loc: tuple) -> list[str]:
     return [f.alias or n for n, f in cls.model_fields.items()]
 
 
-def _message(err: dict) -> str:
+def _message(err: ErrorDetails) -> str:
     kind = err["type"]
     ctx = err.get("ctx") or {}
     given = err.get("input")
@@ -350,9 +351,11 @@ def _zload(load: LoadModel, grid: Grid | None, measured: TabulatedLoad | None,
         return None
     if load.touchstone is not None:
         return probs.guard("load.touchstone", lambda: measured(grid.freq)) if measured is not None else None
-    if load.impedance is not None:
-        return probs.guard("load.impedance", lambda: loads.fixed_impedance(grid.freq, load.impedance))
+    z = load.impedance
+    if z is not None:
+        return probs.guard("load.impedance", lambda: loads.fixed_impedance(grid.freq, z))
     rlc = load.series_rlc or load.parallel_rlc
+    assert rlc is not None  # the model holds exactly one load kind
     kind = "series_rlc" if load.series_rlc is not None else "parallel_rlc"
     fn = loads.series_rlc if kind == "series_rlc" else loads.parallel_rlc
     return probs.guard(f"load.{kind}", lambda: fn(grid.freq, rlc.r, rlc.l, rlc.c))
@@ -408,9 +411,10 @@ def _lumped_bound(value: PartValue) -> Bound:
 def _template_elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
                        shelf: ShelfContext | None) -> tuple[ElementSpec, ...] | None:
     """A template's elements; with shelf keys, each element is built from the shelf for its role."""
-    assert net.template is not None
+    template = net.template
+    assert template is not None
     vf = net.vf if net.vf is not None else 1.0
-    stepped = net.template == "stepped_line"
+    stepped = template == "stepped_line"
     uses = {role: any(v not in (None, False) for v in net.role_keys(role).values()) for role in ROLES}
     z0 = net.z0
     media, z0_free = _media(z0, vf, z_sys, STEPPED_Z0_OHM if stepped and not any(uses.values()) else None)
@@ -419,7 +423,7 @@ def _template_elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Pr
     if (net.spacing and spacing is None) or (net.max_length and max_length is None):
         return None
     plain = probs.guard("network.template", lambda: build_template(
-        net.template, f_ref, media, z0_free=z0_free, end=net.end or "either", spacing=spacing,
+        template, f_ref, media, z0_free=z0_free, end=net.end or "either", spacing=spacing,
         max_length=max_length, sections=net.sections or 3))
     if plain is None or not any(uses.values()):
         return plain
@@ -457,7 +461,7 @@ def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
         label = f"{kind} {i + 1}"
         if isinstance(spec, LumpedModel):
             out.append(ElementSpec("lumped", connection=spec.connection, part=spec.part,
-                                   value=_lumped_bound(spec.value), label=label))
+                                   value=_lumped_bound(spec.part_value), label=label))
             continue
         assert isinstance(spec, (LineModel, StubModel))
         length = _length_bound(spec.length, f_ref, f"{where}.length", probs) if spec.length is not None else None
@@ -473,7 +477,7 @@ def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
             continue
         media, z0_free = _media(spec.z0, spec.vf, z_sys)
         end = spec.end if isinstance(spec, StubModel) else None
-        out.append(ElementSpec(kind, length=length.bound, length_basis=length.basis, media=media,  # type: ignore[arg-type]
+        out.append(ElementSpec(kind, length=length.bound, length_basis=length.basis, media=media,
                                z0_free=z0_free, end=end, label=label))
     return tuple(out) if ok else None
 
@@ -511,7 +515,8 @@ def _role_bodies(raw: dict) -> list[tuple[str, dict]]:
 
 def _check_names(raw: dict, catalog: dict[str, Cable], probs: _Problems) -> None:
     """Cable and allowance names anywhere in the file, whatever else is wrong with it."""
-    shelf = raw.get("shelf") if isinstance(raw.get("shelf"), dict) else {}
+    given = raw.get("shelf")
+    shelf = given if isinstance(given, dict) else {}
     allowances = shelf.get("allowances")
     known = [k for k in allowances if isinstance(k, str)] if isinstance(allowances, dict) else []
     for where, body in _role_bodies(raw):
