@@ -492,7 +492,7 @@ def read_batch_state(path: str | os.PathLike) -> BatchState:
     return state
 
 
-__all__ = ["FAIL", "FAIL_RATING", "FORMAT", "PASS", "VERDICTS", "AlternativeDoc", "Band", "VariantDoc", "BatchState", "BatchStudy", "BuildSheet",
-           "CableTotal", "Choice", "DesignDoc", "LoadPoint", "LoadView", "MaskSegment", "ParetoPoint", "Piece",
-           "PowerCheck", "ResultsFileError", "SearchDoc", "SectionRating", "StockUse", "SummaryDoc", "from_json",
-           "passes", "read_batch_state", "read_summary", "to_json", "vswr_of_rl"]
+__all__ = ["FAIL", "FAIL_RATING", "FORMAT", "PASS", "VERDICTS", "AlternativeDoc", "Band", "VariantDoc", "BatchState",
+           "BatchStudy", "BuildSheet", "CableTotal", "Choice", "DesignDoc", "LoadPoint", "LoadView", "MaskSegment",
+           "ParetoPoint", "Piece", "PowerCheck", "ResultsFileError", "SearchDoc", "SectionRating", "StockUse",
+           "SummaryDoc", "from_json", "passes", "read_batch_state", "read_summary", "to_json", "vswr_of_rl"]
