@@ -16,6 +16,7 @@ from optmatch.outputs.tables import (
     BUILD_HEAD,
     DESIGN_HEAD,
     LOAD_HEAD,
+    LOADS_ALIGN,
     LOADS_HEAD,
     build_cells,
     design_cells,
@@ -69,7 +70,7 @@ def print_summary(doc: SummaryDoc) -> None:
     out = console()
     if doc.several_loads:
         rows, left = loads_rows(doc)
-        out.print(_rows(_table(LOADS_HEAD, "llrrrr", f"{doc.study}: the loads alone (no network)"), rows))
+        out.print(_rows(_table(LOADS_HEAD, LOADS_ALIGN, f"{doc.study}: the loads alone (no network)"), rows))
         if left:
             out.print(Text(f"(the {len(rows)} worst alone; {left} more in summary.json)"))
         out.print(Text(loads_sentence(doc)))

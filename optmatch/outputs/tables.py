@@ -172,6 +172,7 @@ def load_margin_cells(d: DesignDoc, doc: SummaryDoc) -> list[str]:
 
 
 LOADS_HEAD = ("load", "weight", "from", "margin alone (dB)", "worst RL (dB)", "at (MHz)")
+LOADS_ALIGN = "lrlrrr"
 
 
 def loads_rows(doc: SummaryDoc) -> tuple[list[list[str]], int]:
@@ -369,11 +370,12 @@ def summary_markdown(doc: SummaryDoc) -> str:
     if doc.several_loads:
         rows, left = loads_rows(doc)
         lines += ["## The loads alone (no network)", "", md(loads_sentence(doc)), "",
-                  *table(LOADS_HEAD, _cells(rows), "llrrrr"), ""]
+                  *table(LOADS_HEAD, _cells(rows), LOADS_ALIGN), ""]
         if left:
             lines += [f"The {len(rows)} worst alone are shown; {left} more are in summary.json.", ""]
-        lines += [f"The worst alone, {md(doc.load.source)}:", "", *table(LOAD_HEAD, load_cells(doc.load), "lrrrr"),
-                  ""]
+        worst = min(doc.loads, key=lambda c: c.alone.unmatched_margin_db)
+        lines += [f"The worst alone, {md(worst.name)} ({md(worst.source)}):", "",
+                  *table(LOAD_HEAD, load_cells(worst.alone), "lrrrr"), ""]
     else:
         lines += ["## The load alone (no network)", "", *table(LOAD_HEAD, load_cells(doc.load), "lrrrr"), "",
                   load_sentence(doc.load), ""]

@@ -11,6 +11,7 @@ Units after resolution: Hz, Ω, s (delay), m (physical length), dB, seconds of w
 
 from __future__ import annotations
 
+import fnmatch
 import hashlib
 import json
 import math
@@ -344,16 +345,44 @@ def _stem_name(path: Path) -> str:
     return stem if stem and load_name_problem(stem) is None else "load"
 
 
+MAX_PATTERN_NAMES = 100_000  # names a pattern may look at before it is refused (work is bounded)
+_MAGIC = re.compile(r"[*?[]")
+
+
 def expand_pattern(pattern: str, study_dir: Path, limit: int) -> list[Path]:
     """The files a ``files`` pattern matches, sorted by name: relative to ``study_dir`` and inside it
-    (following symbolic links), regular files only, at most ``limit``.  Raises LoadError (one line)."""
+    (following symbolic links), regular files only, at most ``limit``.  Each part of the pattern
+    between slashes is matched against one folder's names (``*``, ``?``, ``[..]``; a name starting
+    with ``.`` only by a part that does too).  Raises LoadError (one line)."""
+    parts = [q for q in re.split(r"[/\\]", pattern.strip()) if q not in ("", ".")]
+    if not parts:
+        raise loads.LoadError(f"{pattern!r} names no file; give a pattern such as measured/unit_*.s1p")
     base = study_dir.resolve()
+    looked = 0
+    current = [study_dir]
+    for k, part in enumerate(parts):
+        last = k == len(parts) - 1
+        nxt: list[Path] = []
+        for folder in current:
+            if not _MAGIC.search(part):
+                candidates = [folder / part]
+            else:
+                try:
+                    names = sorted(os.listdir(folder))
+                except OSError:
+                    continue
+                looked += len(names)
+                if looked > MAX_PATTERN_NAMES:
+                    raise loads.LoadError(f"{pattern!r} looks at more than {MAX_PATTERN_NAMES:,} names; narrow it")
+                candidates = [folder / n for n in names
+                              if fnmatch.fnmatchcase(n, part) and (part.startswith(".") or not n.startswith("."))]
+            for c in candidates:
+                if (c.is_file() if last else c.is_dir()):
+                    nxt.append(c)
+        current = nxt
     found: list[Path] = []
-    for match in sorted(study_dir.glob(pattern)):
-        if not match.is_file():
-            continue
-        real = match.resolve()
-        if not real.is_relative_to(base):
+    for match in current:
+        if not match.resolve().is_relative_to(base):
             raise loads.LoadError(f"{pattern!r} matches {match.relative_to(study_dir)}, which leads outside the "
                                   f"study file's folder")
         found.append(match)
@@ -437,10 +466,10 @@ def _load_text(load: LoadModel | LoadEntryModel) -> str:
     return f"{kind}: {value}"
 
 
-def _sources(model_load: LoadModel | None, entries: list[LoadEntryModel] | None, measured: list[_Measured],
-             probs: _Problems) -> list[tuple[str, LoadSource]] | None:
-    """Every load as (key path, source), in the file's order (a pattern's files in name order);
-    duplicate names are problems.  None when a load could not be read."""
+def _sources(model_load: LoadModel | None, entries: list[LoadEntryModel] | None,
+             measured: list[_Measured]) -> list[tuple[str, LoadSource]] | None:
+    """Every load as (key path, source), in the file's order (a pattern's files in name order).
+    None when a load could not be read (its problem is already said)."""
     by_where: dict[str, list[_Measured]] = {}
     for m in measured:
         by_where.setdefault(m.where, []).append(m)
@@ -458,7 +487,6 @@ def _sources(model_load: LoadModel | None, entries: list[LoadEntryModel] | None,
             out.append((f"load.{model_load.kind}", LoadSource("load", 1.0, _load_text(model_load),
                                                               _model_fn(model_load), (0.0, math.inf))))
         return out
-    seen: dict[str, str] = {}
     for i, entry in enumerate(entries or ()):
         where = f"loads[{i}].{entry.kind}"
         if entry.kind in ("touchstone", "files"):
@@ -473,18 +501,42 @@ def _sources(model_load: LoadModel | None, entries: list[LoadEntryModel] | None,
         else:
             out.append((where, LoadSource(entry.name or "load", entry.weight, _load_text(entry),
                                           _model_fn(entry.as_load()), (0.0, math.inf))))
-    for where, src in out:
-        owner = where.rsplit(".", 1)[0]
-        if src.name not in seen:
-            seen[src.name] = owner
-            continue
-        ok = False
-        if where.endswith(".files"):
-            probs.add(where, f"the file {src.text.removeprefix('files: ')} gives the load name {src.name!r}, "
-                             f"which {seen[src.name]} already has; rename the file or give the loads by name")
-        else:
-            probs.add(f"{owner}.name", f"{src.name!r} is the name of {seen[src.name]} too; give each load its own name")
     return out if ok else None
+
+
+def _check_load_names(raw: dict, measured: list[_Measured], probs: _Problems) -> None:
+    """Every load name of the raw file given once: each entry's ``name``, and the file names a
+    ``files`` pattern matches (checked whatever else is wrong)."""
+    entries = raw.get("loads")
+    if not isinstance(entries, list):
+        return
+    seen: dict[str, str] = {}
+    for i, entry in enumerate(entries):
+        if not isinstance(entry, dict):
+            continue
+        if "files" in entry:
+            found = [(m.name, m.path.name if m.path else "") for m in measured if m.where == f"loads[{i}].files"]
+        elif isinstance(entry.get("name"), str):
+            found = [(entry["name"], None)]
+        else:
+            continue
+        for name, file in found:
+            if name is None:
+                continue
+            if name not in seen:
+                seen[name] = f"loads[{i}]"
+            elif file is not None:
+                probs.add(f"loads[{i}].files", f"the file {file} gives the load name {name!r}, which {seen[name]} "
+                                               "already has; rename the file or give the loads by name")
+            else:
+                probs.add(f"loads[{i}].name", f"{name!r} is the name of {seen[name]} too; give each load its own name")
+
+
+def _check_coverage(measured: list[_Measured], grid: Grid | None, probs: _Problems) -> None:
+    """Every measured load covers the mask's grid (checked whatever else is wrong)."""
+    if grid is not None:
+        for m in measured:
+            probs.guard(m.where, lambda m=m: m.data(grid.freq))
 
 
 def _load_rows(sources: list[tuple[str, LoadSource]] | None, grid: Grid | None, probs: _Problems) -> np.ndarray | None:
@@ -791,12 +843,14 @@ def _resolve(raw: dict, probs: _Problems, p: Path, study_dir: Path, given: Given
     catalog, extra_bytes = catalog_in_force(raw.get("shelf"), study_dir, probs.add)
     _check_names(raw, catalog, probs)
     measured = _measured_loads(raw, study_dir, probs, given)
+    _check_load_names(raw, measured, probs)
 
     grid = probs.guard("mask", lambda: _grid(parts["mask"])) if "mask" in parts else None
+    _check_coverage(measured, grid, probs)
     f_ref = parts.get("reference") or (grid.centre if grid is not None else None)
     sources = None
     if ("load" in parts) != ("loads" in parts):
-        sources = _sources(parts.get("load"), parts.get("loads"), measured, probs)
+        sources = _sources(parts.get("load"), parts.get("loads"), measured)
     n_loads = len(sources) if sources is not None else 1
     if grid is not None and sources is not None and n_loads > 1 and n_loads * grid.freq.size > limits.MAX_LOAD_POINTS:
         probs.add("loads", f"{n_loads:,} loads × {grid.freq.size:,} grid points = {n_loads * grid.freq.size:,} points "
