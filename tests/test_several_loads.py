@@ -24,7 +24,7 @@ import skrf
 from optmatch.cli.main import main
 from optmatch.domain.design import Design
 from optmatch.domain.feasibility import flat_ceiling_db
-from optmatch.domain.tolerance import Spread, monte_carlo
+from optmatch.domain.tolerance import Spread, draw_errors, monte_carlo, yield_scores
 from optmatch.outputs.document import read_summary
 from optmatch.running.pipeline import run_study
 from optmatch.running.search import study_seeds
@@ -149,11 +149,12 @@ def test_share_objective_prefers_more_loads_over_a_better_worst_margin(tmp_path)
     # Z0²/30 turns 200 Ω into Z0²/200, 6.7 times lower, so no line brings all three within 20 dB:
     # the worst-margin design splits the difference and meets none, while the share design meets
     # two and fails 200 Ω badly (quarter-wave identity).
-    worst = _run_three(tmp_path, "worst").designs[0]
-    share = _run_three(tmp_path, "share").designs[0]
+    worst_doc, share_doc = _run_three(tmp_path, "worst"), _run_three(tmp_path, "share")
+    worst, share = worst_doc.designs[0], share_doc.designs[0]
     assert share.loads_met == 2 and share.share == pytest.approx(2 / 3)
     assert {lm.load for lm in share.load_margins if lm.meets_mask} == {"a", "b"}
     assert worst.loads_met < share.loads_met
+    assert (worst_doc.ranked_by, share_doc.ranked_by) == ("margin", "share")
     assert worst.margin_db > share.margin_db + 1.0  # the worst-margin design has the better worst margin
     # the share design's worst load is the 200 Ω one
     assert share.worst_load == "c"
@@ -228,6 +229,11 @@ def test_yield_runs_over_builds_and_loads(tmp_path):
     assert both.load_yields == pytest.approx(tuple(each), abs=1e-12)
     assert both.yield_frac == pytest.approx(0.25 * each[0] + 0.75 * each[1], abs=1e-12)
     assert 0.0 < min(each) < 1.0  # both loads lose some builds: the test can fail
+    # the yield objective's scores count build × load pairs the same way (common draws)
+    draws = draw_errors(problem, design.choice, spread, 200, np.random.default_rng(9))
+    y_both, _ = yield_scores(problem, design.vector(), design.choice, draws)
+    y_each = [yield_scores(problem.single(k), design.vector(), design.choice, draws)[0][0] for k in range(2)]
+    assert y_both[0] == pytest.approx(0.25 * y_each[0] + 0.75 * y_each[1], abs=1e-12)
 
 
 # ------------------------------------------------------------------ file patterns and many loads
@@ -355,7 +361,7 @@ def test_single_load_study_is_unchanged(tmp_path):
 # ------------------------------------------------------------------ the demo, as the README shows it
 
 
-def test_three_condition_demo_runs_and_its_table_is_in_the_readme(tmp_path, monkeypatch):
+def test_three_condition_demo_runs_and_its_table_is_in_the_readme(tmp_path, monkeypatch, capsys):
     monkeypatch.chdir(ROOT)
     out = tmp_path / "results"
     assert main(["run", "configs/demo_whip_conditions.yaml", "--out", str(out), "--quiet"]) == 0
@@ -367,3 +373,17 @@ def test_three_condition_demo_runs_and_its_table_is_in_the_readme(tmp_path, monk
     table = summary[summary.index("| rank | verdict | parked (dB)"):].split("\n\n")[0]
     readme = (ROOT / "README.md").read_text()
     assert table in readme, "the README's per-load table of the demo is out of date"
+
+    # trim needs to know which load the build was measured with
+    measured = folder / "matched_input_parked.s1p"  # a perfect build of design 1 on the parked load
+    assert main(["trim", str(folder), "--measured", str(measured)]) == 2
+    assert main(["trim", str(folder), "--measured", str(measured), "--load-name", "parkd"]) == 2
+    err = capsys.readouterr().err
+    assert "the study has 3 loads (parked, moving, building); say which one" in err
+    assert "no such load" in err and "did you mean 'parked'?" in err
+    assert main(["trim", str(folder), "--measured", str(measured), "--load-name", "parked", "--json"]) == 0
+    trim = json.loads(capsys.readouterr().out)
+    assert trim["fit"]["verdict"] == "explained" and trim["steps"] == []
+    parked = doc["designs"][0]["load_margins"][0]
+    assert parked["load"] == "parked"
+    assert trim["margin_db"]["measured"] == pytest.approx(parked["margin_db"], abs=0.01)

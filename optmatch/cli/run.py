@@ -82,7 +82,8 @@ def print_summary(doc: SummaryDoc) -> None:
     if doc.designs:
         ranked = f"ranked by {doc.ranked_by}" + (", within the ratings first" if doc.drive_w is not None else "")
         if doc.several_loads:
-            ranked += (", the share of loads met first" if doc.load_rule == "share" else "") + "; margin: the worst load's"
+            ranked += (" of the loads met, then the worst margin" if doc.load_rule == "share" else "") \
+                + "; margin: the worst load's"
         out.print(_rows(_table(DESIGN_HEAD, "llrrrrrl", f"{doc.study}: best designs ({ranked})"),
                         [design_cells(d) for d in doc.designs]))
         if doc.several_loads:

@@ -336,12 +336,13 @@ def _label_edges(ax, perf: Performance, reach: float) -> None:
                     bbox={"boxstyle": "round,pad=0.2", "facecolor": "white", "edgecolor": "#c3c8cd", "alpha": 0.9})
 
 
-def _traces(ax, perfs: Sequence[tuple[str, Performance]], load: Performance | None, legend: bool) -> None:
+def _traces(ax, perfs: Sequence[tuple[str, Performance]], load: Performance | None, legend: bool,
+            load_label: str = "load alone (no network)") -> None:
     """The load (dashed) and the designs, drawn worst rank first so that rank 1 lies on top."""
     if load is not None:
         g = load.gamma
         ax.plot(g.real, g.imag, color=LOAD_INK, linewidth=1.4, linestyle=(0, (5, 3)), zorder=3,
-                label="load alone (no network)" if legend else None)
+                label=load_label if legend else None)
         ax.plot([g[0].real], [g[0].imag], marker="o", markersize=5, color=LOAD_INK, zorder=3)
         ax.plot([g[-1].real], [g[-1].imag], marker="s", markersize=5, color=LOAD_INK, zorder=3)
     for k in reversed(range(len(perfs))):
@@ -379,6 +380,7 @@ def plot_smith(
     min_rl_db: float | None = None,
     load: Performance | None = None,
     caption: Caption | None = None,
+    load_label: str = "load alone (no network)",
 ) -> Path:
     """Smith chart (normalised to ``z_sys`` Ω) of the input reflection of ranked designs, and a zoom.
 
@@ -394,7 +396,7 @@ def plot_smith(
         ax.set_axis_off()
     _smith_grid(whole)
     _limit_circle(whole, min_rl_db, legend=True)
-    _traces(whole, perfs, load, legend=True)
+    _traces(whole, perfs, load, legend=True, load_label=load_label)
     whole.set_xlim(-1.18, 1.18)
     whole.set_ylim(-1.12, 1.12)
     whole.set_title(f"Input reflection, normalised to {z_sys:g} Ω", color=TEXT_INK, fontsize=11, loc="left")

@@ -334,8 +334,10 @@ def write_results(study: Study, outcome: SearchOutcome, out_root: Path,
                                             segments=list(problem.grid.segments), caption=caption, many=MANY_LOADS))
         worst_first = sorted(range(len(per_load)), key=lambda k: per_load[k][1].margin_db)[:MANY_LOADS]
         shown = [(f"#1 on {per_load[k][0]}", per_load[k][1]) for k in sorted(worst_first)]
+        worst_alone = min(doc.loads, key=lambda c: c.alone.unmatched_margin_db).name
         files.append(plot_smith(shown, folder / "smith.png", problem.z_sys,
-                                min_rl_db=float(problem.grid.min_rl_db.max()), load=built.load, caption=caption))
+                                min_rl_db=float(problem.grid.min_rl_db.max()), load=built.load, caption=caption,
+                                load_label=f"{worst_alone} alone, the worst (no network)"))
         files += list(export_touchstone(problem, built.ranked[0][0], folder, invented=doc.invented,
                                         per_load=matched_input_files(doc)))
     elif built.ranked:

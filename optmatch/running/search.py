@@ -65,7 +65,7 @@ class SearchOutcome:
     seeds: list[Seed]
     stopped_early: bool
     distinct: list[Design] = field(default_factory=list)  # every distinct design found, ranked (designs: the first keep)
-    ranked_by: str = "margin"  # the objective that ranked ``designs``: margin, yield or pareto
+    ranked_by: str = "margin"  # what ranked ``designs``: margin, yield, pareto, or share (of several loads met)
 
 
 BUDGET_KEYS = ("trials", "time", "keep", "target_margin")
@@ -422,5 +422,5 @@ def run_search(
         seeds=seeds,
         stopped_early=stopped["early"],
         distinct=designs,
-        ranked_by=settings.objective,
+        ranked_by="share" if problem.several and problem.load_rule == "share" else settings.objective,
     )
