@@ -158,7 +158,9 @@ def load_margin_head(doc: SummaryDoc) -> tuple[str, ...]:
 
 def load_margin_align(doc: SummaryDoc) -> str:
     """One letter per column of :func:`load_margin_head` (``l`` text, ``r`` a number)."""
-    return "ll" + "r" * (len(load_margin_head(doc)) - 2)
+    if len(doc.loads) <= MANY_LOADS:
+        return "ll" + "r" * (len(load_margin_head(doc)) - 2)
+    return "llrlrrr"
 
 
 def load_margin_cells(d: DesignDoc, doc: SummaryDoc) -> list[str]:
