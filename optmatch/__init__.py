@@ -1,8 +1,11 @@
 """optmatch: broadband transmission-line stub matching against a return-loss mask.
 
-The user-facing API: load a study file, run it, write its results; the closed-form solutions;
-and the batched engine for custom studies.  Names are imported on first use, so that
-``import optmatch`` (and the quick ``optmatch spot``) does not pull in optuna or matplotlib.
+The user-facing API: build a study (from a study file, or from a dict and typed objects with loads
+as scikit-rf Networks or arrays), run it, and get the designs back as scikit-rf Networks
+(:mod:`optmatch.api`: ``study``, ``run``, ``Load``, ``Segment``, ``Line``, ``ShuntStub``,
+``SeriesStub``); the closed-form solutions; and the batched engine for custom studies.  Names are
+imported on first use, so that ``import optmatch`` (and the quick ``optmatch spot``) does not pull
+in optuna, matplotlib or scikit-rf.
 """
 
 from __future__ import annotations
@@ -24,6 +27,16 @@ _EXPORTS = {
     "check_study": "optmatch.studyfile.loader",
     "load_study": "optmatch.studyfile.loader",
     "run_study": "optmatch.running.pipeline",
+    "study": "optmatch.api",
+    "run": "optmatch.api",
+    "Load": "optmatch.api",
+    "Segment": "optmatch.api",
+    "Line": "optmatch.api",
+    "ShuntStub": "optmatch.api",
+    "SeriesStub": "optmatch.api",
+    "Result": "optmatch.api",
+    "DesignResult": "optmatch.api",
+    "OptmatchError": "optmatch.errors",
 }
 
 __all__ = sorted(_EXPORTS)

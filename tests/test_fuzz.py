@@ -83,7 +83,8 @@ ODD_TEXT = st.one_of(
     st.text(max_size=12),
     st.sampled_from(["..", ".", "a/b", "a\nb", "../../etc", "RG213", "RG-213", "RG-58-class", "foam-10mm",
                      "open", "opne", "short", "either", "double_stub", "dubble_stub", "whip.s1p", "missing.s1p",
-                     "/etc/passwd", "60-j80", "60-80j", "1e18", "-j80", "true", "null", "n_pair", "tee"]),
+                     "/etc/passwd", "60-j80", "60-80j", "1e18", "-j80", "true", "null", "n_pair", "tee",
+                     "*.s1p", "../*.s1p", "**/*.s1p", "[a-", "share", "worst", "files", "weight"]),
 )
 SCALAR = st.one_of(NUMBERS, QUANTITY, ODD_TEXT, st.booleans(), st.none())
 VALUE = st.recursive(SCALAR, lambda inner: st.one_of(st.lists(inner, max_size=3),
@@ -114,6 +115,11 @@ BASES: list[dict[str, Any]] = [
                       "two": {"elements": [{"line": {"length": {"min": "1mm", "max": "90mm"}, "z0": 50, "vf": 0.8}},
                                            {"shunt_stub": {"length": "40deg", "end": "open", "z0": 75}}]},
                       "three": {"template": "stepped_line", "sections": 2, "z0": {"min": 20, "max": 120}}}},
+    {"name": "several", "loads": [{"name": "a", "touchstone": "whip.s1p"},
+                                  {"name": "b", "impedance": "30-j20", "weight": 2},
+                                  {"files": "whip*.s1p"}],
+     "mask": {"segments": [{"from": "420MHz", "to": "450MHz", "return_loss": 15}]},
+     "network": {"template": "single_shunt_stub"}, "search": {"loads": "share"}},
 ]
 
 

@@ -594,7 +594,7 @@ def test_four_problems_in_one_check(tmp_path, capsys):
     err = capsys.readouterr().err.strip().splitlines()
     assert err == [
         f"{path}:2: laod: unknown key; did you mean 'load'? (allowed: name, description, system, reference, load, "
-        "mask, network, alternatives, search, shelf, drive, tolerance)",
+        "loads, mask, network, alternatives, search, shelf, drive, tolerance)",
         f"{path}:3: load.touchstone: {tmp_path / 'missing.s1p'}: file not found",
         f"{path}:6: mask.segments[0].from: '144mhz': did you mean 144 MHz? (m is milli, M is mega)",
         f"{path}:9: network.elements[0].line.cable: unknown cable 'RG213'; did you mean 'RG-213-class'? "

@@ -20,5 +20,9 @@ def run_check(args: argparse.Namespace) -> int:
         return EXIT_BAD_INPUT
     for note in study.notes:  # e.g. which catalog class a bare trade designation stands for
         print(f"note: {note}")
+    problem = study.problem
+    if problem.several:  # say what the loads are, e.g. which files a pattern matched
+        names = ", ".join(problem.names[:8]) + (f" and {problem.n_loads - 8} more" if problem.n_loads > 8 else "")
+        print(f"loads: {problem.n_loads} ({names})")
     print(f"{args.file}: ok")
     return 0

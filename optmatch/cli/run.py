@@ -18,11 +18,18 @@ from optmatch.outputs.tables import (
     BUILD_HEAD,
     DESIGN_HEAD,
     LOAD_HEAD,
+    LOADS_ALIGN,
+    LOADS_HEAD,
     alternative_cells,
     build_cells,
     design_cells,
     load_cells,
+    load_margin_align,
+    load_margin_cells,
+    load_margin_head,
     load_sentence,
+    loads_rows,
+    loads_sentence,
     mask_text,
 )
 from optmatch.studyfile.loader import StudyFileError, load_study
@@ -62,20 +69,38 @@ def _rows(tab: Table, rows: Sequence[Sequence[str]]) -> Table:
 
 
 def print_summary(doc: SummaryDoc) -> None:
-    """The closing report: the load alone, the ranked designs, the build sheet and the verdict."""
+    """The closing report: the load(s) alone, the ranked designs (on each load), the build sheet and the verdict."""
     out = console()
-    out.print(_rows(_table(LOAD_HEAD, "lrrrr", f"{doc.study}: the load alone (no network)"), load_cells(doc.load)))
-    out.print(Text(f"mask: {mask_text(doc.mask)}"))
-    out.print(Text(load_sentence(doc.load)))
+    if doc.several_loads:
+        rows, left = loads_rows(doc)
+        out.print(_rows(_table(LOADS_HEAD, LOADS_ALIGN, f"{doc.study}: the loads alone (no network)"), rows))
+        if left:
+            out.print(Text(f"(the {len(rows)} worst alone; {left} more in summary.json)"))
+        out.print(Text(loads_sentence(doc)))
+        out.print(Text(f"mask: {mask_text(doc.mask)}"))
+    else:
+        out.print(_rows(_table(LOAD_HEAD, "lrrrr", f"{doc.study}: the load alone (no network)"), load_cells(doc.load)))
+        out.print(Text(f"mask: {mask_text(doc.mask)}"))
+        out.print(Text(load_sentence(doc.load)))
     if doc.alternatives:
         title = f"{doc.study}: alternatives compared (best design of each)"
         out.print(_rows(_table(ALTERNATIVE_HEAD, ALTERNATIVE_ALIGN, title),
                         [alternative_cells(a) for a in doc.alternatives]))
     if doc.designs:
         ranked = f"ranked by {doc.ranked_by}" + (", within the ratings first" if doc.drive_w is not None else "")
+        if doc.several_loads:
+            ranked += (" of the loads met, then the worst margin" if doc.load_rule == "share" else "") \
+                + "; margin: the worst load's"
         out.print(_rows(_table(DESIGN_HEAD, "llrrrrrl", f"{doc.study}: best designs ({ranked})"),
                         [design_cells(d) for d in doc.designs]))
-        out.print("yield: share of simulated builds (cut, velocity-factor and Z0 spreads) that still meet the mask")
+        if doc.several_loads:
+            out.print(_rows(_table(load_margin_head(doc), load_margin_align(doc),
+                                   f"{doc.study}: margin of each design on each load"),
+                            [load_margin_cells(d, doc) for d in doc.designs]))
+            out.print("yield: share of simulated builds × loads (cut, velocity-factor and Z0 spreads) that still "
+                      "meet the mask")
+        else:
+            out.print("yield: share of simulated builds (cut, velocity-factor and Z0 spreads) that still meet the mask")
     if doc.build is not None and doc.build.pieces:
         title = (f"build sheet of the design ranked {doc.build.design_rank} "
                  f"(electrical lengths at {doc.reference_hz / 1e6:.3f} MHz)")
@@ -107,8 +132,14 @@ def run_run(args: argparse.Namespace) -> int:
             task = prog.add_task(study.problem.name, total=study.search.trials, status="")
 
             def report(done: int, total: int, best: float | None) -> None:
-                status = "" if best is None else (f"best yield {100 * best:.0f} %" if study.search.objective == "yield"
-                                                  else f"best margin {best:+.2f} dB")
+                if best is None:
+                    status = ""
+                elif study.search.objective == "yield":
+                    status = f"best yield {100 * best:.0f} %"
+                elif study.problem.load_rule == "share" and study.problem.several:
+                    status = f"best share of loads met {100 * best:.0f} %"
+                else:
+                    status = f"best margin {best:+.2f} dB"
                 prog.update(task, completed=done, total=total, status=status)
 
             folder, doc = run_study(study, args.out, args.storage, progress_fn=report)

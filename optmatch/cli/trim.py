@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import re
 from collections.abc import Callable
 from dataclasses import dataclass, replace
@@ -21,10 +20,9 @@ from optmatch.bench.asbuilt import BuildModel, measured_margin_db
 from optmatch.bench.fit import MIN_FIT_POINTS, fit_build
 from optmatch.bench.trims import TrimRules, plan_trims
 from optmatch.cli.terminal import console, table
-from optmatch.domain import loads
 from optmatch.domain.design import Design
 from optmatch.domain.loads import TabulatedLoad
-from optmatch.errors import OptmatchError
+from optmatch.errors import OptmatchError, did_you_mean
 from optmatch.io.touchstone import read_one_port
 from optmatch.outputs.trim_report import (
     TRIM_MD,
@@ -58,6 +56,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--design", type=int, default=1, metavar="RANK", help="rank of the design you built (default 1)")
     p.add_argument("--load", type=Path, default=None, help="a fresh 1-port measurement of the bare load, used in "
                    "place of the study's load")
+    p.add_argument("--load-name", default=None, metavar="NAME", help="with a study of several loads: the one the "
+                   "build was measured with")
     p.add_argument("--trim-short-stubs", action="store_true", help="also shorten short stubs (at the shorted end)")
     p.add_argument("--trim-lines", action="store_true", help="also shorten lines")
     p.add_argument("--json", action="store_true", help="print one JSON document instead of the tables")
@@ -92,22 +92,28 @@ def read_results(folder: Path, rank: int) -> Built:
     return Built(sub, design, rank, frozenset(str(k) for k in doc.files))
 
 
-def study_load(study: Study) -> tuple[Callable[[np.ndarray], np.ndarray], tuple[float, float]]:
-    """The study's load as a function of frequency (Hz → Ω) and the range where it is known (Hz)."""
-    from optmatch.studyfile.schema import StudyModel
+def study_load(study: Study, name: str | None = None) -> tuple[Callable[[np.ndarray], np.ndarray], tuple[float, float]]:
+    """The study's load (with several, the one called ``name``) as a function of frequency (Hz → Ω)
+    and the range where it is known (Hz)."""
+    src = study.loads[pick_load(study, name)]
+    return src.fn, src.range_hz
 
-    load = StudyModel.model_validate(study.raw).load
-    if load.touchstone is not None:
-        p = Path(load.touchstone)
-        tab = read_one_port(p if p.is_absolute() else study.path.parent / p)
-        return tab, tab.range_hz
-    if load.impedance is not None:
-        z = load.impedance
-        return (lambda f: loads.fixed_impedance(f, z)), (0.0, math.inf)
-    rlc = load.series_rlc or load.parallel_rlc
-    assert rlc is not None
-    fn = loads.series_rlc if load.series_rlc is not None else loads.parallel_rlc
-    return (lambda f: fn(f, rlc.r, rlc.l, rlc.c)), (0.0, math.inf)
+
+def pick_load(study: Study, name: str | None) -> int:
+    """The index of the study's load the build was measured with: ``name`` among several loads."""
+    names = [src.name for src in study.loads]
+    if len(names) == 1:
+        if name is not None and name != names[0]:
+            raise TrimInputError(f"--load-name {name}: the study has one load ({names[0]}); leave --load-name out")
+        return 0
+    shown = ", ".join(names[:8]) + (" ..." if len(names) > 8 else "")
+    if name is None:
+        raise TrimInputError(f"{study.path}: the study has {len(names)} loads ({shown}); say which one the build was "
+                             "measured with (--load-name NAME), or give a measurement of the bare load (--load FILE)")
+    if name not in names:
+        raise TrimInputError(f"--load-name {name}: no such load in {study.path}{did_you_mean(name, names, quote=True)} "
+                             f"(the loads: {shown})")
+    return names.index(name)
 
 
 def read_measurement(path: Path, what: str) -> TabulatedLoad:
@@ -159,15 +165,20 @@ def run_trim(args: argparse.Namespace) -> int:
                              f"not the mask band {_mhz(lo)} to {_mhz(hi)}")
     load_fn: Callable[[np.ndarray], np.ndarray]
     if args.load is not None:
+        if args.load_name is not None:
+            raise TrimInputError("--load-name and --load: give one of the two (--load replaces the study's load)")
         fresh = read_measurement(args.load, "--load")
         if not _covers(fresh, lo, hi):
             a, b = fresh.range_hz
             raise TrimInputError(f"{args.load}: covers {_mhz(a)} to {_mhz(b)}, "
                                  f"not the mask band {_mhz(lo)} to {_mhz(hi)}")
         load_fn, load_range = fresh, fresh.range_hz
+        problem = problem.single(0) if problem.several else problem
         problem = replace(problem, zload=fresh(problem.grid.freq))
     else:
-        load_fn, load_range = study_load(study)
+        k = pick_load(study, args.load_name)
+        load_fn, load_range = study_load(study, args.load_name)
+        problem = problem.single(k) if problem.several else problem
     f = measured.freq_hz
     inside = (f >= load_range[0] * (1 - 1e-12)) & (f <= load_range[1] * (1 + 1e-12))
     f = f[inside]

@@ -18,13 +18,19 @@ from optmatch.units import C0
 
 @dataclass(frozen=True)
 class Design:
-    """One candidate network: discrete ``choice`` plus unit vector ``u`` over the free parameters."""
+    """One candidate network: discrete ``choice`` plus unit vector ``u`` over the free parameters.
+
+    ``margin_db`` is the worst over every load; with several loads, ``load_margins_db`` holds the
+    margin on each (in the problem's order) and ``share`` the weighted share of loads that meet the
+    mask."""
 
     choice: Choice
     u: tuple[float, ...]
     margin_db: float
     length_wl: float
     trial: int = -1
+    load_margins_db: tuple[float, ...] = ()
+    share: float | None = None
 
     def vector(self) -> np.ndarray:
         return np.array(self.u, dtype=float).reshape(1, -1)
@@ -107,15 +113,21 @@ def _figures(problem: Problem, gamma: np.ndarray, gamma_sq: np.ndarray, delivere
                        network_loss_db=loss_db, worst_index=idx, worst_rl_db=rl, margin_db=margin)
 
 
-def performance(problem: Problem, design: Design) -> Performance:
-    """Evaluate one design over the problem's grid."""
-    r = problem.response(design.vector(), design.choice)
+def performance(problem: Problem, design: Design, load: int | str | None = None) -> Performance:
+    """Evaluate one design over the problem's grid, with its ``load`` (by name or index; None when
+    there is one)."""
+    r = problem.response(design.vector(), design.choice, load)
     return _figures(problem, r.gamma[0], r.gamma_sq[0], r.delivered[0], r.network_loss_db[0])
 
 
-def bare_load(problem: Problem) -> Performance:
+def performances(problem: Problem, design: Design) -> list[Performance]:
+    """:func:`performance` of one design on every load, in the problem's order."""
+    return [performance(problem, design, k) for k in range(problem.n_loads)]
+
+
+def bare_load(problem: Problem, load: int | str | None = None) -> Performance:
     """The load alone, with no network, against the system impedance (no network loss)."""
-    zl = np.asarray(problem.zload, dtype=complex)
+    zl = np.asarray(problem.zloads[problem.load_index(load)], dtype=complex)
     gamma = (zl - problem.z_sys) / (zl + problem.z_sys)
     gamma_sq = np.abs(gamma) ** 2
     return _figures(problem, gamma, gamma_sq, 1.0 - gamma_sq, np.zeros(gamma.shape))

@@ -25,7 +25,7 @@ a measured load) it is an estimate, reported with the fit's largest |ΔΓ|.  Uni
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Literal, get_args
 
 import numpy as np
@@ -60,6 +60,8 @@ class Feasibility:
     demand_share: float = 0.0
     mask_return_loss_db: float = 0.0
     limit: str = ""  # the two-element Bode–Fano limit that sets the ceiling
+    load: str = ""  # with several loads: the one whose ceiling is the lowest
+    loads: int = 1  # how many loads the ceiling was taken over
 
     @property
     def feasible(self) -> bool:
@@ -76,6 +78,8 @@ class Feasibility:
             "demand_share": self.demand_share,
             "mask_return_loss_db": self.mask_return_loss_db,
             "limit": self.limit,
+            "load": self.load,
+            "loads": self.loads,
             "feasible": self.feasible,
             "statement": self.statement(),
         }
@@ -83,12 +87,15 @@ class Feasibility:
     def statement(self) -> str:
         """One or two plain sentences for the terminal and reports."""
         if self.ceiling_return_loss_db is None:
+            if self.loads > 1:
+                return f"ceiling: none (all {self.loads} loads are resistive over the band; Bode–Fano sets no limit)"
             return ("ceiling: none (the load is resistive over the band; Bode–Fano sets no limit)")
         how = "exact" if self.basis == "exact" else f"estimated: closest fit, |ΔΓ| ≤ {self.fit_error:.3f}"
         vals = ", ".join(_fmt_value(k, v) for k, v in self.values.items())
         which = "" if self.limit == self.model else f", its {self.limit} limit"
+        whose = f"; the lowest of {self.loads} loads, set by load {self.load}" if self.loads > 1 else ""
         text = (f"ceiling: {self.ceiling_return_loss_db:.2f} dB flat return loss over the band "
-                f"(Bode–Fano, {self.model} load {vals}{which}; {how})")
+                f"(Bode–Fano, {self.model} load {vals}{which}; {how}{whose})")
         if not self.feasible:
             lead = "By this estimate, no" if self.basis == "estimated" else "No"
             text += (f". {lead} lossless network can meet this mask across the band (it asks for "
@@ -284,3 +291,16 @@ def ceiling(zload: np.ndarray, grid: Grid, z_sys: float) -> Feasibility:
     exact = err <= EXACT_FIT and len(limits) == 1
     return Feasibility(name, values, ceil_db, "exact" if exact else "estimated", 0.0 if exact else err, share,
                        mask_rl, limit)
+
+
+def lowest_ceiling(zloads: np.ndarray, names: tuple[str, ...], grid: Grid, z_sys: float) -> Feasibility:
+    """The lowest :func:`ceiling` over several loads (``zloads`` (L, F), Ω on ``grid.freq``; a
+    resistive load, with no limit, counts as the highest), naming the load that sets it.  One
+    load (no ``names``): its own ceiling."""
+    z = np.atleast_2d(np.asarray(zloads))
+    if not names:
+        return ceiling(z[0], grid, z_sys)
+    each = [ceiling(row, grid, z_sys) for row in z]
+    k = min(range(len(each)), key=lambda i: (math.inf if each[i].ceiling_return_loss_db is None
+                                            else each[i].ceiling_return_loss_db, -each[i].demand_share))
+    return replace(each[k], load=names[k], loads=len(each))

@@ -126,6 +126,7 @@ def minimax_polish(
     t0 = float(np.max(shortfall(start[None, :])[0]))
     evals += 1
     z0 = np.append(start, t0)
+
     def cost_grad(z: np.ndarray) -> np.ndarray:
         return np.eye(d + 1)[-1]
 
@@ -164,13 +165,16 @@ def _floored(vals: np.ndarray, grads: np.ndarray, floor: float) -> tuple[np.ndar
 
 def _polish_one(shortfall: Callable[[np.ndarray], np.ndarray], shortfall_grad: ShortfallGrad,
                 u0: np.ndarray, s0: np.ndarray, g0: np.ndarray, max_iter: int,
-                ftol: float) -> tuple[np.ndarray, int]:
-    """One start of :func:`minimax_polish_exact`, given its shortfalls ``s0`` and gradients ``g0``."""
+                ftol: float, hold: np.ndarray | None = None) -> tuple[np.ndarray, int]:
+    """One start of :func:`minimax_polish_exact`, given its shortfalls ``s0`` and gradients ``g0``;
+    ``hold`` (F,) marks points that must stay at or below 0 dB (met) as well."""
     d = u0.size
     evals = 0
     t0 = float(np.max(s0))
     floor = t0 - FLOOR_DB
-    v_start, g_start = _floored(s0, g0, floor)
+    held = hold is not None and bool(np.any(hold))
+    low = min(floor, -FLOOR_DB) if held else floor  # held points need their values down to -FLOOR_DB
+    v_start, g_start = _floored(s0, g0, low)
     vals_at: dict[bytes, np.ndarray] = {u0.tobytes(): v_start}
     grad_at: dict[bytes, np.ndarray] = {u0.tobytes(): g_start}
 
@@ -179,7 +183,7 @@ def _polish_one(shortfall: Callable[[np.ndarray], np.ndarray], shortfall_grad: S
         key = x.tobytes()
         if key not in vals_at:
             vals_at.clear()
-            vals_at[key] = np.maximum(shortfall(x[None, :])[0], floor)
+            vals_at[key] = np.maximum(shortfall(x[None, :])[0], low)
             evals += 1
         return vals_at[key]
 
@@ -189,7 +193,7 @@ def _polish_one(shortfall: Callable[[np.ndarray], np.ndarray], shortfall_grad: S
         if key not in grad_at:
             v, g = shortfall_grad(x[None, :])
             evals += 1
-            vv, gg = _floored(v[0], g[0], floor)
+            vv, gg = _floored(v[0], g[0], low)
             grad_at.clear()
             grad_at[key] = gg
             vals_at.clear()
@@ -197,12 +201,24 @@ def _polish_one(shortfall: Callable[[np.ndarray], np.ndarray], shortfall_grad: S
         return grad_at[key]
 
     def cons(z: np.ndarray) -> np.ndarray:
-        return z[-1] - values(np.clip(z[:-1], 0.0, 1.0))
+        return z[-1] - np.maximum(values(np.clip(z[:-1], 0.0, 1.0)), floor)
 
     def cons_jac(z: np.ndarray) -> np.ndarray:
-        jac = grads(np.clip(z[:-1], 0.0, 1.0))
+        x = np.clip(z[:-1], 0.0, 1.0)
+        jac = grads(x)  # fills the values' cache too
+        jac = np.where((values(x) < floor)[:, None], 0.0, jac)
         return np.hstack([-jac, np.ones((jac.shape[0], 1))])
 
+    constraints = [{"type": "ineq", "fun": cons, "jac": cons_jac}]
+    if held:
+        def cons_held(z: np.ndarray) -> np.ndarray:
+            return -values(np.clip(z[:-1], 0.0, 1.0))[hold]
+
+        def cons_held_jac(z: np.ndarray) -> np.ndarray:
+            jac = grads(np.clip(z[:-1], 0.0, 1.0))[hold]
+            return np.hstack([-jac, np.zeros((jac.shape[0], 1))])
+
+        constraints.append({"type": "ineq", "fun": cons_held, "jac": cons_held_jac})
     cost = np.eye(d + 1)[-1]
 
     def cost_grad(z: np.ndarray) -> np.ndarray:
@@ -211,10 +227,15 @@ def _polish_one(shortfall: Callable[[np.ndarray], np.ndarray], shortfall_grad: S
     res = minimize(  # type: ignore[call-overload]  # scipy-stubs want a scalar constraint; SLSQP takes ours
         _epigraph_cost, np.append(u0, t0), jac=cost_grad, method="SLSQP",
         bounds=[(max(0.0, x0 - POLISH_REACH), min(1.0, x0 + POLISH_REACH)) for x0 in u0] + [(None, None)],
-        constraints=[{"type": "ineq", "fun": cons, "jac": cons_jac}],
+        constraints=constraints,
         options={"maxiter": max_iter, "ftol": ftol})
     x = np.clip(res.x[:-1], 0.0, 1.0)
-    return (x if float(np.max(values(x))) < t0 else u0.copy()), evals
+    v = values(x)
+    better = float(np.max(v)) < t0 and (not held or float(np.max(v[hold])) <= 0.0)
+    return (x if better else u0.copy()), evals
+
+
+HoldFn = Callable[[np.ndarray], np.ndarray]
 
 
 def minimax_polish_exact(
@@ -223,6 +244,7 @@ def minimax_polish_exact(
     u0: np.ndarray,
     max_iter: int = 40,
     ftol: float = 1e-10,
+    hold: HoldFn | None = None,
 ) -> tuple[np.ndarray, int]:
     """Exact minimax refinement of every start in ``u0`` (m, d), with exact gradients.
 
@@ -232,15 +254,17 @@ def minimax_polish_exact(
     ``shortfall_grad(u) -> (values (n, F), gradients (n, F, d))`` the constraint Jacobian in one
     engine call, where forward differences took d + 1.  (One SLSQP problem holding every start as
     a block was tried: its subproblem grows with the square of the starts and it needed more
-    iterations, so each start gets its own.)  Returns, per start, the better of the start and the
-    result, and the evaluations used.
+    iterations, so each start gets its own.)  ``hold(shortfalls (F,)) -> (F,) bool``, when given,
+    marks the points of a start that must also stay met (shortfall ≤ 0 dB) on the way.  Returns,
+    per start, the better of the start and the result, and the evaluations used.
     """
     u0 = np.atleast_2d(np.asarray(u0, dtype=float))
     s0, g0 = shortfall_grad(u0)
     evals = u0.shape[0]
     out = u0.copy()
     for a in range(u0.shape[0]):
-        out[a], used = _polish_one(shortfall, shortfall_grad, u0[a], s0[a], g0[a], max_iter, ftol)
+        out[a], used = _polish_one(shortfall, shortfall_grad, u0[a], s0[a], g0[a], max_iter, ftol,
+                                   hold(s0[a]) if hold is not None else None)
         evals += used
     return out, evals
 
@@ -303,6 +327,7 @@ def inner_search(
     avoid: np.ndarray | None = None,
     avoid_radius: float = 0.08,
     avoid_db: float = 20.0,
+    hold: HoldFn | None = None,
 ) -> InnerResult:
     """Population search, then an exact minimax polish of the best ``polish_top`` distinct points;
     results best first.
@@ -314,7 +339,8 @@ def inner_search(
 
     ``avoid`` (k, dim): designs found before for the same choice; the population search's score
     loses ``avoid_db`` within ``avoid_radius`` (max norm) of each, so the population settles in
-    other basins.  Results are ranked by the plain ``score``.
+    other basins.  ``hold`` goes to :func:`minimax_polish_exact` (points each polish must keep
+    met).  Results are ranked by the plain ``score``.
     """
     if dim == 0:
         u = np.zeros((1, 0))
@@ -338,7 +364,7 @@ def inner_search(
             picked.append(far[0])
     polished = []
     if shortfall_grad is not None:
-        x, used = minimax_polish_exact(shortfall, shortfall_grad, np.array(picked))
+        x, used = minimax_polish_exact(shortfall, shortfall_grad, np.array(picked), hold=hold)
         evals += used
         polished = list(x)
     else:

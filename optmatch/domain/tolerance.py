@@ -4,6 +4,9 @@ Each build draws, per line or stub, a cut error (m), a velocity-factor error and
 per lumped part a value error, all uniform within ± their tolerance.  Z0 and VF tolerances come
 from the cable catalog where the element names a cable; the study may set or override them.
 Units: m, fractions (0.02 = 2 %), dB.
+
+With several loads every build is tried on every load: the yield is the weighted share of
+(build, load) pairs that meet the mask, and the percentiles are over those pairs.
 """
 
 from __future__ import annotations
@@ -48,7 +51,10 @@ class Sensitivity:
 
 @dataclass(frozen=True)
 class Robustness:
-    """Monte Carlo result: share of builds meeting the mask, margin percentiles (dB), sensitivities."""
+    """Monte Carlo result: share of builds meeting the mask, margin percentiles (dB), sensitivities.
+
+    With several loads: the share and percentiles are over builds × loads (weighted by the loads'
+    weights), and ``load_yields`` holds each load's own share of builds (the problem's order)."""
 
     yield_frac: float
     samples: int
@@ -56,6 +62,7 @@ class Robustness:
     margin_p50_db: float
     margin_min_db: float
     sensitivities: tuple[Sensitivity, ...]
+    load_yields: tuple[float, ...] = ()
 
     def as_dict(self) -> dict:
         d = dict(self.__dict__)
@@ -198,12 +205,30 @@ def perturbed_batch(problem: Problem, u: np.ndarray, choice: Choice, draws: Draw
 YIELD_PERCENTILE = 10.0  # the low percentile of the build margins that breaks yield ties
 
 
+def pair_figures(problem: Problem, margins: np.ndarray, q: float) -> tuple[np.ndarray, np.ndarray]:
+    """Yield and the ``q``-th percentile margin (dB) of build × load margins ``margins`` (n, K, L):
+    the loads' weights apply (every pair of a load weighs its share over K)."""
+    n, k, nl = margins.shape
+    w = problem.weights
+    y = np.mean(margins >= 0.0, axis=1) @ w
+    flat = margins.reshape(n, k * nl)
+    if np.allclose(w, w[0]):
+        return y, np.percentile(flat, q, axis=1)
+    pair_w = np.tile(w, k)
+    return y, np.array([np.percentile(row, q, weights=pair_w, method="inverted_cdf") for row in flat])
+
+
 def yield_scores(problem: Problem, u: np.ndarray, choice: Choice, draws: Draws) -> tuple[np.ndarray, np.ndarray]:
-    """Yield (share of builds meeting the mask) and the 10th-percentile build margin (dB) of every
-    design in ``u`` (n, dim) over the same ``draws`` (common random numbers), each (n,)."""
+    """Yield (share of builds meeting the mask; with several loads, of builds × loads) and the
+    10th-percentile build margin (dB) of every design in ``u`` (n, dim) over the same ``draws``
+    (common random numbers), each (n,)."""
     u = np.atleast_2d(u)
-    margins = problem.margins_of(perturbed_batch(problem, u, choice, draws)).reshape(u.shape[0], draws.samples)
-    return np.mean(margins >= 0.0, axis=1), np.percentile(margins, YIELD_PERCENTILE, axis=1)
+    params = perturbed_batch(problem, u, choice, draws)
+    if not problem.several:
+        margins = problem.margins_of(params).reshape(u.shape[0], draws.samples)
+        return np.mean(margins >= 0.0, axis=1), np.percentile(margins, YIELD_PERCENTILE, axis=1)
+    lm = problem.load_margins_of(params).reshape(u.shape[0], draws.samples, problem.n_loads)
+    return pair_figures(problem, lm, YIELD_PERCENTILE)
 
 
 def design_yields(problem: Problem, designs: list[Design], spread: Spread) -> list[tuple[float, float]]:
@@ -221,8 +246,16 @@ def monte_carlo(problem: Problem, design: Design, spread: Spread) -> Robustness:
     """Yield and margin spread of ``spread.samples`` builds of ``design``, plus sensitivities."""
     draws = draw_errors(problem, design.choice, spread, spread.samples, np.random.default_rng(spread.seed))
     n = draws.samples
-    margins = problem.margins_of(perturbed_params(problem, design, draws.cut_m, draws.vf_rel, draws.z0_rel,
-                                                  draws.value_rel))
+    params = perturbed_params(problem, design, draws.cut_m, draws.vf_rel, draws.z0_rel, draws.value_rel)
+    if problem.several:
+        lm = problem.load_margins_of(params)  # (K, L)
+        y, p5 = pair_figures(problem, lm[None], 5.0)
+        _, p50 = pair_figures(problem, lm[None], 50.0)
+        return Robustness(
+            yield_frac=float(y[0]), samples=n, margin_p5_db=float(p5[0]), margin_p50_db=float(p50[0]),
+            margin_min_db=float(np.min(lm)), sensitivities=sensitivities(problem, design),
+            load_yields=tuple(float(v) for v in np.mean(lm >= 0.0, axis=0)))
+    margins = problem.margins_of(params)
     return Robustness(
         yield_frac=float(np.mean(margins >= 0.0)),
         samples=n,

@@ -25,6 +25,8 @@ Connection = Literal["series", "shunt"]
 Part = Literal["r", "l", "c"]
 
 DEFAULT_CHUNK = 256
+CHUNK_POINTS = 256 * 4096  # candidates × points per chunk on long grids (several loads): a bounded working set
+MIN_CHUNK = 16
 DIRECT_PHASOR_MAX = 64  # up to this many candidates, phasors come from one exponential per point
 CACHE_GRIDS = True  # keep each frequency grid's run detection between calls
 FULL_RESCALE_EVERY = 6  # branches between per-point rescales of the wave state
@@ -198,6 +200,13 @@ class Grid:
 
 
 _GRIDS: dict[tuple[bytes, bool], Grid] = {}
+
+
+def chunk_for(points: int) -> int:
+    """Candidates per chunk on a grid of ``points`` frequencies: :data:`DEFAULT_CHUNK`, fewer on
+    grids so long that a chunk would hold more than :data:`CHUNK_POINTS` points (at least
+    :data:`MIN_CHUNK`)."""
+    return int(max(MIN_CHUNK, min(DEFAULT_CHUNK, CHUNK_POINTS // max(int(points), 1))))
 
 
 def cached_grid(freq: np.ndarray, n: int) -> Grid:

@@ -62,7 +62,7 @@ def keep_variant(folder: Path, study: Study, design: Design, based_on: int, alte
                                      which=f"{name}, tuned from design rank {based_on}")
         files = tuple(f"{VARIANTS_DIR}/{name}/{p.name}" for p in exported)
         record = design_doc(study, design, performance(study.problem, design), based_on, power_check(study, design),
-                            alternative)
+                            alternative=alternative)
         variant = VariantDoc(name=name, based_on=based_on, design=record, files=files)
         every = (*kept, variant)
         written = write_json_atomic(folder / VARIANTS_JSON,

@@ -102,6 +102,29 @@ class LoadView:
 
 
 @dataclass(frozen=True)
+class LoadCase:
+    """One of a study's several loads: its name, weight, where it came from, and the load alone."""
+
+    name: str
+    weight: float
+    source: str
+    alone: LoadView
+
+
+@dataclass(frozen=True)
+class LoadMargin:
+    """One design on one of several loads: the margin (dB), the worst return loss and where, and
+    the share of simulated builds that meet the mask on that load (None without a Monte Carlo)."""
+
+    load: str
+    margin_db: Db
+    worst_return_loss_db: Db
+    worst_freq_hz: float
+    meets_mask: bool
+    yield_frac: float | None = None
+
+
+@dataclass(frozen=True)
 class SectionRating:
     """One line or stub at the drive power against its cable's (and connectors') ratings.
 
@@ -171,6 +194,10 @@ class DesignDoc:
     robustness: Robustness | None = None
     power: PowerCheck | None = None
     alternative: str = ""  # the named network it belongs to, in a study with alternatives ("" otherwise)
+    load_margins: tuple[LoadMargin, ...] = ()  # several loads: the design on each (the study's order)
+    share: float | None = None  # several loads: weighted share of the loads whose mask it meets
+    loads_met: int | None = None  # several loads: how many it meets
+    worst_load: str | None = None  # several loads: the load with the lowest margin (margin_db is that margin)
 
     @property
     def passes(self) -> bool:
@@ -321,6 +348,8 @@ class FeasibilityDoc:
     limit: str
     feasible: bool
     statement: str
+    load: str = ""  # several loads: the load whose ceiling is the lowest
+    loads: int = 1
 
 
 @dataclass(frozen=True)
@@ -361,10 +390,17 @@ class SummaryDoc:
     format: int = FORMAT
     alternatives: tuple[AlternativeDoc, ...] = ()  # one row per named network (studies with alternatives)
     variants: tuple[VariantDoc, ...] = ()  # designs kept from the explorer (variants.json), never ranked
+    loads: tuple[LoadCase, ...] = ()  # several loads (``load`` is then the one that is worst alone)
+    load_rule: str = "worst"  # several loads: ranked by the worst margin over them, or by the share met
 
     @property
     def best(self) -> DesignDoc | None:
         return self.designs[0] if self.designs else None
+
+    @property
+    def several_loads(self) -> bool:
+        """The study gave ``loads:`` (its designs carry ``load_margins``)."""
+        return bool(self.loads)
 
 
 @dataclass(frozen=True)
@@ -492,7 +528,8 @@ def read_batch_state(path: str | os.PathLike) -> BatchState:
     return state
 
 
-__all__ = ["FAIL", "FAIL_RATING", "FORMAT", "PASS", "VERDICTS", "AlternativeDoc", "Band", "VariantDoc", "BatchState",
-           "BatchStudy", "BuildSheet", "CableTotal", "Choice", "DesignDoc", "LoadPoint", "LoadView", "MaskSegment",
-           "ParetoPoint", "Piece", "PowerCheck", "ResultsFileError", "SearchDoc", "SectionRating", "StockUse",
-           "SummaryDoc", "from_json", "passes", "read_batch_state", "read_summary", "to_json", "vswr_of_rl"]
+__all__ = ["FAIL", "FAIL_RATING", "FORMAT", "PASS", "VERDICTS", "AlternativeDoc", "Band", "BatchState", "BatchStudy",
+           "BuildSheet", "CableTotal", "Choice", "DesignDoc", "LoadCase", "LoadMargin", "LoadPoint", "LoadView",
+           "MaskSegment", "ParetoPoint", "Piece", "VariantDoc", "PowerCheck", "ResultsFileError", "SearchDoc",
+           "SectionRating", "StockUse", "SummaryDoc", "from_json", "passes", "read_batch_state", "read_summary",
+           "to_json", "vswr_of_rl"]

@@ -7,6 +7,7 @@ to the problem's system impedance.  Units: Hz, Ω.
 from __future__ import annotations
 
 import os
+from collections.abc import Mapping
 from pathlib import Path
 
 import numpy as np
@@ -76,20 +77,24 @@ def network_sparams(problem: Problem, design: Design) -> np.ndarray:
     return s
 
 
-def matched_input(problem: Problem, design: Design) -> np.ndarray:
-    """Input reflection Γ (F,) of the network terminated in the problem's load, against the system impedance."""
-    return problem.response(design.vector(), design.choice).gamma[0]
+def matched_input(problem: Problem, design: Design, load: int | str | None = None) -> np.ndarray:
+    """Input reflection Γ (F,) of the network terminated in the problem's load (with several, the
+    one named or numbered ``load``), against the system impedance."""
+    return problem.response(design.vector(), design.choice, load).gamma[0]
 
 
 INVENTED_NOTE = "INVENTED data: the study says its load data is invented; this is not about a measured device"
 
 
 def export_touchstone(problem: Problem, design: Design, folder: str | os.PathLike, rank: int = 1,
-                      invented: bool = False, which: str | None = None) -> tuple[Path, Path]:
-    """Write ``best_network.s2p`` (the network alone) and ``matched_input.s1p`` into ``folder``.
+                      invented: bool = False, which: str | None = None,
+                      per_load: Mapping[str, str] | None = None) -> tuple[Path, ...]:
+    """Write ``best_network.s2p`` (the network alone) and ``matched_input.s1p`` into ``folder``;
+    with several loads, the matched input on each load named in ``per_load`` (load name -> file name)
+    instead of ``matched_input.s1p``.
 
-    Both headers name the study and the design (``which``, default ``design rank {rank}``), and say
-    that the data is invented when ``invented``.  Returns the two paths.  Both files are written
+    Every header names the study, the design (``which``, default ``design rank {rank}``) and the load,
+    and says that the data is invented when ``invented``.  Returns the paths.  Every file is written
     atomically.
     """
     out = Path(folder)
@@ -107,8 +112,13 @@ def export_touchstone(problem: Problem, design: Design, folder: str | os.PathLik
         "port 1 faces the source (input), port 2 faces the load",
         f"both ports referenced to {z:g} ohm",
     ]
-    input_lines = [*common, "input reflection of the matching network terminated in the study's load"]
     freq = problem.grid.freq
     s2p = write_touchstone(out / NETWORK_FILE, freq, network_sparams(problem, design), z, network_lines)
-    s1p = write_touchstone(out / INPUT_FILE, freq, matched_input(problem, design), z, input_lines)
-    return s2p, s1p
+    if not problem.several:
+        input_lines = [*common, "input reflection of the matching network terminated in the study's load"]
+        return s2p, write_touchstone(out / INPUT_FILE, freq, matched_input(problem, design), z, input_lines)
+    files = [s2p]
+    for name, file in (per_load or {}).items():
+        lines = [*common, f"input reflection of the matching network terminated in the study's load {name}"]
+        files.append(write_touchstone(out / file, freq, matched_input(problem, design, name), z, lines))
+    return tuple(files)

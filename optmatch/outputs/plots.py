@@ -210,6 +210,82 @@ def plot_return_loss(
                       "Return loss of the ranked designs against the mask", "upper right", caption)
 
 
+LOAD_COLOURS = ("#1b6f8a", "#d9822b", "#6c4f9e", "#3f8f4f", "#a63d57", "#8a6d1b")
+ENVELOPE = "#9ec5d3"
+
+
+def _mask_patches(ax, spans: Sequence[tuple[float, float, float]]) -> None:
+    for k, (f_lo, f_hi, req) in enumerate(spans):
+        x = np.array([f_lo, f_hi]) / 1e6
+        if f_hi == f_lo:
+            ax.plot([x[0], x[0]], [0.0, req], color=FORBIDDEN, linewidth=6, solid_capstyle="butt")
+            ax.plot([x[0]], [req], marker="_", markersize=14, markeredgewidth=2, color=REQUIREMENT)
+            continue
+        ax.fill_between(x, 0.0, req, color=FORBIDDEN, alpha=0.55, linewidth=0,
+                        label="below the mask (fails)" if k == 0 else None)
+        ax.plot(x, [req, req], color=REQUIREMENT, linewidth=1.6, label="required return loss" if k == 0 else None)
+
+
+def plot_return_loss_loads(
+    design: str,
+    per_load: Sequence[tuple[str, Performance]],
+    grid: Grid,
+    path: str | os.PathLike,
+    segments: Sequence[Segment] | None = None,
+    caption: Caption | None = None,
+    many: int = 6,
+) -> Path:
+    """Return loss (dB) of one ``design`` on each of several loads, against the mask.
+
+    ``per_load``: (load name, performance) in the study's order.  Up to ``many`` loads, each load's
+    curve in its own colour; beyond that, the envelope over every load (shaded, lowest to highest
+    return loss at each frequency) and the curve of the worst load.  The worst point is marked.
+    """
+    fig = _figure()
+    ax = fig.add_subplot(1, 1, 1)
+    _style(ax)
+    spans = [(s.f_lo, s.f_hi, s.min_rl_db) for s in segments] if segments else mask_spans(grid)
+    rl_all = np.array([pf.return_loss_db for _, pf in per_load])
+    finite = rl_all[np.isfinite(rl_all)]
+    top_req = max(sp[2] for sp in spans)
+    y_top = min(max(float(np.max(finite)) if finite.size else 0.0, top_req * 1.6) + 3.0, RL_CAP_DB)
+    _mask_patches(ax, spans)
+    breaks = _gap_breaks(grid.freq)
+    worst_k = int(np.argmin([pf.margin_db for _, pf in per_load]))
+    if len(per_load) <= many:
+        for k, (name, pf) in enumerate(per_load):
+            x, y = _broken(pf.freq / 1e6, np.minimum(pf.return_loss_db, y_top), breaks)
+            ax.plot(x, y, color=LOAD_COLOURS[k % len(LOAD_COLOURS)], linewidth=2.2 if k == worst_k else 1.5,
+                    label=f"on {name}", zorder=3)
+    else:
+        lo, hi = np.min(np.minimum(rl_all, y_top), axis=0), np.max(np.minimum(rl_all, y_top), axis=0)
+        x = per_load[0][1].freq / 1e6
+        ax.fill_between(x, lo, hi, color=ENVELOPE, alpha=0.7, linewidth=0,
+                        label=f"envelope over all {len(per_load)} loads", zorder=2)
+        name, pf = per_load[worst_k]
+        xw, yw = _broken(pf.freq / 1e6, np.minimum(pf.return_loss_db, y_top), breaks)
+        ax.plot(xw, yw, color=DESIGN_COLOURS[0], linewidth=2.2, label=f"on {name} (the worst load)", zorder=3)
+    name, worst = per_load[worst_k]
+    i = worst.worst_index
+    fw, rlw = worst.freq[i] / 1e6, min(worst.worst_rl_db, y_top)
+    ax.plot([fw], [rlw], marker="o", markersize=8, markerfacecolor="white", markeredgecolor=TEXT_INK,
+            markeredgewidth=2.0, zorder=4)
+    span = float(grid.freq.max() - grid.freq.min()) / 1e6 or 1.0
+    left = fw > grid.freq.min() / 1e6 + 0.6 * span
+    down = rlw > 0.45 * y_top
+    ax.annotate(f"worst point: load {name}\n{worst.worst_rl_db:.2f} dB at {fw:.3f} MHz\n"
+                f"margin {worst.margin_db:+.2f} dB",
+                xy=(fw, rlw), xytext=(-18 if left else 18, -30 if down else 26), textcoords="offset points",
+                ha="right" if left else "left", va="top" if down else "bottom", fontsize=9, color=TEXT_INK,
+                bbox={"boxstyle": "round,pad=0.3", "facecolor": "white", "edgecolor": "#9aa0a6", "alpha": 0.95},
+                arrowprops={"arrowstyle": "-", "color": "#5b6168", "linewidth": 1.0}, zorder=5)
+    ax.set_ylim(0.0, y_top)
+    pad = 0.03 * span
+    ax.set_xlim(grid.freq.min() / 1e6 - pad, grid.freq.max() / 1e6 + pad)
+    return _finish_xy(fig, ax, path, "frequency (MHz)", "return loss (dB, higher is better)",
+                      f"Return loss of design {design} on each load, against the mask", "upper right", caption)
+
+
 def _smith_grid(ax, labels: bool = True) -> None:
     """Constant-resistance circles and constant-reactance arcs, clipped to the unit circle."""
     t = np.linspace(0.0, 2.0 * np.pi, 721)
@@ -256,12 +332,13 @@ def _label_edges(ax, perf: Performance, reach: float) -> None:
                     bbox={"boxstyle": "round,pad=0.2", "facecolor": "white", "edgecolor": "#c3c8cd", "alpha": 0.9})
 
 
-def _traces(ax, perfs: Sequence[tuple[str, Performance]], load: Performance | None, legend: bool) -> None:
+def _traces(ax, perfs: Sequence[tuple[str, Performance]], load: Performance | None, legend: bool,
+            load_label: str = "load alone (no network)") -> None:
     """The load (dashed) and the designs, drawn worst rank first so that rank 1 lies on top."""
     if load is not None:
         g = load.gamma
         ax.plot(g.real, g.imag, color=LOAD_INK, linewidth=1.4, linestyle=(0, (5, 3)), zorder=3,
-                label="load alone (no network)" if legend else None)
+                label=load_label if legend else None)
         ax.plot([g[0].real], [g[0].imag], marker="o", markersize=5, color=LOAD_INK, zorder=3)
         ax.plot([g[-1].real], [g[-1].imag], marker="s", markersize=5, color=LOAD_INK, zorder=3)
     for k in reversed(range(len(perfs))):
@@ -299,6 +376,7 @@ def plot_smith(
     min_rl_db: float | None = None,
     load: Performance | None = None,
     caption: Caption | None = None,
+    load_label: str = "load alone (no network)",
 ) -> Path:
     """Smith chart (normalised to ``z_sys`` Ω) of the input reflection of ranked designs, and a zoom.
 
@@ -314,7 +392,7 @@ def plot_smith(
         ax.set_axis_off()
     _smith_grid(whole)
     _limit_circle(whole, min_rl_db, legend=True)
-    _traces(whole, perfs, load, legend=True)
+    _traces(whole, perfs, load, legend=True, load_label=load_label)
     whole.set_xlim(-1.18, 1.18)
     whole.set_ylim(-1.12, 1.12)
     whole.set_title(f"Input reflection, normalised to {z_sys:g} Ω", color=TEXT_INK, fontsize=11, loc="left")

@@ -158,13 +158,77 @@ def load_sentence(load: LoadView) -> str:
     return text
 
 
+# ---------------------------------------------------------------- several loads
+
+MANY_LOADS = 6  # above this many loads, a design's row gives the loads met, the worst load and its margin
+
+
+def _share_text(d: DesignDoc) -> str:
+    n = len(d.load_margins)
+    met = f"{d.loads_met} of {n}"
+    if d.share is not None and abs(d.share - (d.loads_met or 0) / n) > 1e-9:
+        met += f" ({100 * d.share:.0f} % by weight)"
+    return met
+
+
+def load_margin_head(doc: SummaryDoc) -> tuple[str, ...]:
+    """Columns of the per-load table of the ranked designs: the margin on each load (up to
+    :data:`MANY_LOADS` loads), or the loads met, the worst load and its margin."""
+    if len(doc.loads) <= MANY_LOADS:
+        return ("rank", "verdict", *(f"{c.name} (dB)" for c in doc.loads), "loads met")
+    return ("rank", "verdict", "loads met", "worst load", "its margin (dB)", "at (MHz)", "yield, builds × loads")
+
+
+def load_margin_align(doc: SummaryDoc) -> str:
+    """One letter per column of :func:`load_margin_head` (``l`` text, ``r`` a number)."""
+    if len(doc.loads) <= MANY_LOADS:
+        return "ll" + "r" * (len(load_margin_head(doc)) - 2)
+    return "llrlrrr"
+
+
+def load_margin_cells(d: DesignDoc, doc: SummaryDoc) -> list[str]:
+    """A ranked design's row of the per-load table (terminal, summary.md, and the study page)."""
+    if len(doc.loads) <= MANY_LOADS:
+        return [str(d.rank), d.verdict, *(num(lm.margin_db, "+.2f", "+∞") for lm in d.load_margins), _share_text(d)]
+    worst = next((lm for lm in d.load_margins if lm.load == d.worst_load), None)
+    return [str(d.rank), d.verdict, _share_text(d), d.worst_load or DASH,
+            num(worst.margin_db if worst else None, "+.2f", "+∞"),
+            f"{worst.worst_freq_hz / 1e6:.2f}" if worst else DASH, yield_text(d)]
+
+
+LOADS_HEAD = ("load", "weight", "from", "margin alone (dB)", "worst RL (dB)", "at (MHz)")
+LOADS_ALIGN = "lrlrrr"
+
+
+def loads_rows(doc: SummaryDoc) -> tuple[list[list[str]], int]:
+    """The loads alone, one row each (up to :data:`MANY_LOADS`; beyond that the worst alone), and
+    how many are left out."""
+    cases = list(doc.loads)
+    if len(cases) > MANY_LOADS:
+        cases = sorted(cases, key=lambda c: c.alone.unmatched_margin_db)[:MANY_LOADS]
+    rows = [[c.name, f"{c.weight:g}", c.source, num(c.alone.unmatched_margin_db, "+.2f", "+∞"),
+             num(c.alone.worst_return_loss_db, ".2f"), f"{c.alone.worst_freq_hz / 1e6:.2f}"] for c in cases]
+    return rows, len(doc.loads) - len(cases)
+
+
+def loads_sentence(doc: SummaryDoc) -> str:
+    """How many loads, how they rank the designs, and how many meet the mask alone."""
+    n = len(doc.loads)
+    met = sum(1 for c in doc.loads if c.alone.meets_mask)
+    rule = ("by the weighted share of loads whose mask they meet, ties broken by the worst margin"
+            if doc.load_rule == "share" else "by their worst margin over every load")
+    return (f"{n} loads; designs are ranked {rule}. Alone, {met} of {n} meet the mask"
+            + (": no network needed." if met == n else "."))
+
+
 # ---------------------------------------------------------------- designs.csv
 
 
 def design_rows(designs: Sequence[DesignDoc]) -> list[dict]:
     """One flat row per design, best first (``rank`` 1), for ``designs.csv``.
 
-    Columns: rank, verdict, margin_db, worst_rl_db, worst_freq_hz, length_wl, yield_frac, then per
+    Columns: rank, verdict, margin_db, worst_rl_db, worst_freq_hz, length_wl, yield_frac (with
+    several loads: loads_met, share, worst_load and, up to six loads, ``margin_db_<load>``), then per
     element ``e{i}_`` kind, end, connection, part, medium, z0_ohm, length_deg (cable + allowances),
     length_wl, length_mm (cable to cut), value, value_unit.  Elements are numbered from the load
     outwards.  Missing quantities are None.
@@ -176,6 +240,10 @@ def design_rows(designs: Sequence[DesignDoc]) -> list[dict]:
                      "worst_freq_hz": d.worst_freq_hz,
                      "length_wl": d.total_length_wl,
                      "yield_frac": None if d.robustness is None else d.robustness.yield_frac}
+        if d.load_margins:
+            row.update({"loads_met": d.loads_met, "share": d.share, "worst_load": d.worst_load})
+            if len(d.load_margins) <= MANY_LOADS:
+                row.update({f"margin_db_{lm.load}": lm.margin_db for lm in d.load_margins})
         for el in d.elements:
             i = el.index
             row.update({
@@ -236,6 +304,18 @@ RESULT_FILES = {
 }
 
 
+def matched_input_files(doc: SummaryDoc) -> dict[str, str]:
+    """With several loads, the matched input of the best design on each load (up to
+    :data:`MANY_LOADS` loads; beyond that on its worst load), by load name: ``matched_input_<load>.s1p``.
+    Empty with one load (its file is ``matched_input.s1p``)."""
+    if not doc.several_loads or not doc.designs:
+        return {}
+    names = [c.name for c in doc.loads]
+    if len(names) > MANY_LOADS:
+        names = [doc.designs[0].worst_load or names[0]]
+    return {name: f"matched_input_{name}.s1p" for name in names}
+
+
 def _cells(rows: Sequence[Sequence[str]]) -> list[list[str]]:
     """Every cell escaped as markdown text."""
     return [[md(c) for c in row] for row in rows]
@@ -266,9 +346,19 @@ def _robustness_markdown(d: DesignDoc, doc: SummaryDoc) -> list[str]:
     spreads = [f"cut ±{tol.cut_m * 1e3:g} mm"]
     for val, label in ((tol.z0_rel, "Z0"), (tol.vf_rel, "velocity factor"), (tol.parts_rel, "lumped values")):
         spreads.append(f"{label} ±{val * 100:g} %" if val is not None else f"{label}: the cable's own tolerance")
+    if rob.load_yields:
+        each = ""
+        if len(rob.load_yields) <= MANY_LOADS:
+            each = " On each load: " + ", ".join(f"{md(lm.load)} {100.0 * y:.0f} %"
+                                                 for lm, y in zip(d.load_margins, rob.load_yields, strict=False)) + "."
+        lead = (f"Each of {rob.samples} simulated builds ({', '.join(spreads)}; uniform spreads) was tried on every "
+                f"one of the {len(rob.load_yields)} loads: **{100.0 * rob.yield_frac:.0f} %** of the build–load "
+                f"pairs meet the mask (weighted by load).{each} Margin over the pairs")
+    else:
+        lead = (f"Of {rob.samples} simulated builds ({', '.join(spreads)}; uniform spreads), "
+                f"**{100.0 * rob.yield_frac:.0f} %** meet the mask. Margin")
     lines = ["## Robustness of the best design", "",
-             f"Of {rob.samples} simulated builds ({', '.join(spreads)}; uniform spreads), "
-             f"**{100.0 * rob.yield_frac:.0f} %** meet the mask. Margin: median {rob.margin_p50_db:+.2f} dB, "
+             f"{lead}: median {rob.margin_p50_db:+.2f} dB, "
              f"5th percentile {rob.margin_p5_db:+.2f} dB, worst {rob.margin_min_db:+.2f} dB. A low yield says: "
              "trim the open stubs while measuring.", ""]
     rows = [[str(s.index + 1), num(s.db_per_mm, "+.3f"), num(s.db_per_pct_vf, "+.3f"), num(s.db_per_pct_z0, "+.3f"),
@@ -304,8 +394,18 @@ def summary_markdown(doc: SummaryDoc) -> str:
         lines.append(f"- Drive: {doc.drive_w:g} W available from the source")
     lines += ["", "Mask:", "", *table(MASK_HEAD, mask_cells(doc.mask), "rrrrr"), ""]
 
-    lines += ["## The load alone (no network)", "", *table(LOAD_HEAD, load_cells(doc.load), "lrrrr"), "",
-              load_sentence(doc.load), ""]
+    if doc.several_loads:
+        rows, left = loads_rows(doc)
+        lines += ["## The loads alone (no network)", "", md(loads_sentence(doc)), "",
+                  *table(LOADS_HEAD, _cells(rows), LOADS_ALIGN), ""]
+        if left:
+            lines += [f"The {len(rows)} worst alone are shown; {left} more are in summary.json.", ""]
+        worst = min(doc.loads, key=lambda c: c.alone.unmatched_margin_db)
+        lines += [f"The worst alone, {md(worst.name)} ({md(worst.source)}):", "",
+                  *table(LOAD_HEAD, load_cells(worst.alone), "lrrrr"), ""]
+    else:
+        lines += ["## The load alone (no network)", "", *table(LOAD_HEAD, load_cells(doc.load), "lrrrr"), "",
+                  load_sentence(doc.load), ""]
     if doc.feasibility is not None:
         lines += [f"Bode–Fano {md(doc.feasibility.statement)}.", ""]
 
@@ -313,6 +413,10 @@ def summary_markdown(doc: SummaryDoc) -> str:
     if doc.designs:
         lines += ["## Ranked designs", "", *table(DESIGN_HEAD, _cells([design_cells(d) for d in doc.designs]),
                                                   "llrrrrrl"), ""]
+        if doc.several_loads:
+            lines += ["The margin is the worst over every load. On each load:", "",
+                      *table(load_margin_head(doc), _cells([load_margin_cells(d, doc) for d in doc.designs]),
+                             load_margin_align(doc)), ""]
         lines += build_markdown(doc)
         lines += _ratings_markdown(doc.designs[0])
         lines += _robustness_markdown(doc.designs[0], doc)
@@ -322,8 +426,12 @@ def summary_markdown(doc: SummaryDoc) -> str:
         plots.update(list(DEFAULT_PLOTS.items())[2:])
     links = [f"- [{title}]({path})" for title, path in plots.items()]
     if doc.designs:
+        per_load = matched_input_files(doc)
         links += [f"- [{title}]({path})" for title, path in RESULT_FILES.items()
-                  if path != "cut_list.md" or doc.build is not None]
+                  if (path != "cut_list.md" or doc.build is not None)
+                  and not (per_load and path == "matched_input.s1p")]
+        links[-1:-1] = [f"- [Matched input on load {md(name)}, 1-port Touchstone]({path})"
+                        for name, path in per_load.items()]
     if links:
         lines += ["## Plots and files", "", *links, ""]
 

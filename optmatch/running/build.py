@@ -11,7 +11,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from optmatch.domain.design import Design, ElementReport, Performance, describe, performance
+from optmatch.domain.design import Design, ElementReport, Performance, describe, performances
 from optmatch.domain.microstrip import printed_line
 from optmatch.domain.power import check_ratings, drive
 from optmatch.outputs.document import (
@@ -173,11 +173,14 @@ def stock_used(study: Study, design: Design) -> list[StockUse]:
             for (name, length), n in sorted(net.pieces_used(design.choice).items())]
 
 
-def band(perf: Performance, drive_w: float | None) -> Band:
-    """Network loss and delivered power over the band."""
-    lo, hi = float(np.min(perf.delivered)), float(np.max(perf.delivered))
-    return Band(network_loss_db_min=float(np.nanmin(perf.network_loss_db)),
-                network_loss_db_max=float(np.nanmax(perf.network_loss_db)),
+def band(perf: Performance | Sequence[Performance], drive_w: float | None) -> Band:
+    """Network loss and delivered power over the band (and over every load, given each one's)."""
+    perfs = [perf] if isinstance(perf, Performance) else list(perf)
+    delivered = np.concatenate([pf.delivered for pf in perfs])
+    loss = np.concatenate([pf.network_loss_db for pf in perfs])
+    lo, hi = float(np.min(delivered)), float(np.max(delivered))
+    return Band(network_loss_db_min=float(np.nanmin(loss)),
+                network_loss_db_max=float(np.nanmax(loss)),
                 delivered_share_min=lo, delivered_share_max=hi,
                 delivered_w_min=None if drive_w is None else lo * drive_w,
                 delivered_w_max=None if drive_w is None else hi * drive_w)
@@ -200,7 +203,8 @@ def power_check(study: Study, design: Design) -> PowerCheck | None:
     net = problem.network
     params = net.engine_params(design.vector(), design.choice)
     scalar = [{k: (np.asarray(v).reshape(-1)[0] if np.ndim(v) else v) for k, v in p.items()} for p in params]
-    res = drive(net.stages, scalar, problem.grid.freq, problem.zload, problem.z_sys, study.drive_w)
+    freq, zl = problem.stacked()  # with several loads: peaks over the band and over every load
+    res = drive(net.stages, scalar, freq, zl, problem.z_sys, study.drive_w)
     cables = {}
     for i, el in enumerate(net.elements):
         if el.is_line_like:
@@ -257,10 +261,12 @@ def rating_warnings(power: PowerCheck | None) -> list[str]:
 
 
 def build_sheet(study: Study, design: Design, elements: Sequence[ElementReport] | None = None,
-                perf: Performance | None = None, rank: int = 1) -> BuildSheet:
-    """The build sheet of one design (pass its ``elements`` and ``perf`` when already computed)."""
+                perf: Performance | Sequence[Performance] | None = None, rank: int = 1) -> BuildSheet:
+    """The build sheet of one design (pass its ``elements`` and ``perf`` when already computed; with
+    several loads, every load's performance)."""
     elements = describe(study.problem, design) if elements is None else elements
-    perf = performance(study.problem, design) if perf is None else perf
+    if perf is None:
+        perf = performances(study.problem, design)
     built = pieces(study, design, elements)
     return BuildSheet(
         design_rank=rank, pieces=tuple(built), assembly=tuple(assembly(elements, built)),

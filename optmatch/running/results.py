@@ -16,13 +16,13 @@ from __future__ import annotations
 import hashlib
 import re
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
 
 from optmatch import __version__
-from optmatch.domain.design import Design, Performance, bare_load, describe, performance
+from optmatch.domain.design import Design, Performance, bare_load, describe, performance, performances
 from optmatch.domain.tolerance import monte_carlo
 from optmatch.io.atomic import write_json_atomic, write_text_atomic
 from optmatch.io.paths import child_path
@@ -34,6 +34,8 @@ from optmatch.outputs.document import (
     Choice,
     DesignDoc,
     FeasibilityDoc,
+    LoadCase,
+    LoadMargin,
     LoadPoint,
     LoadView,
     MaskSegment,
@@ -45,8 +47,14 @@ from optmatch.outputs.document import (
     vswr_of_rl,
 )
 from optmatch.outputs.network_export import export_touchstone
-from optmatch.outputs.plots import Caption, plot_pareto, plot_return_loss, plot_smith
-from optmatch.outputs.tables import design_rows, summary_markdown, write_designs_csv
+from optmatch.outputs.plots import Caption, plot_pareto, plot_return_loss, plot_return_loss_loads, plot_smith
+from optmatch.outputs.tables import (
+    MANY_LOADS,
+    design_rows,
+    matched_input_files,
+    summary_markdown,
+    write_designs_csv,
+)
 from optmatch.outputs.variants import VARIANTS_JSON, carried_variants
 from optmatch.running.alternatives import Compared, compare
 from optmatch.running.build import build_sheet, power_check, rating_warnings, stock_warnings
@@ -66,22 +74,27 @@ def results_dir(study: Study, out_root: Path) -> Path:
 # ---------------------------------------------------------------- the study's own facts
 
 
-def data_is_invented(study: Study) -> bool:
-    """Whether the study says its data is invented: its description contains the word ``invented``,
-    or a comment line (``!``) of its Touchstone load file does."""
-    if INVENTED.search(study.description or ""):
-        return True
-    load = study.raw.get("load")
-    name = load.get("touchstone") if isinstance(load, Mapping) else None
-    if not isinstance(name, str):
-        return False
-    path = Path(name) if Path(name).is_absolute() else study.path.parent / name
+def _says_invented(path: Path) -> bool:
     try:
         with path.open("rb") as fh:
             head = fh.read(TOUCHSTONE_HEAD_BYTES).decode("utf-8", errors="replace")
     except OSError:
         return False
     return any(INVENTED.search(line) for line in head.splitlines() if line.lstrip().startswith("!"))
+
+
+def data_is_invented(study: Study) -> bool:
+    """Whether the study says its data is invented: its description contains the word ``invented``,
+    or a comment line (``!``) of one of its Touchstone load files does."""
+    if INVENTED.search(study.description or ""):
+        return True
+    paths = [src.path for src in study.loads if src.path is not None]
+    if not study.loads:
+        load = study.raw.get("load")
+        name = load.get("touchstone") if isinstance(load, Mapping) else None
+        if isinstance(name, str):
+            paths.append(Path(name) if Path(name).is_absolute() else study.path.parent / name)
+    return any(_says_invented(path) for path in paths)
 
 
 def _load_source(study: Study) -> str:
@@ -98,17 +111,20 @@ def mask_doc(study: Study) -> tuple[MaskSegment, ...]:
                  for s in study.problem.grid.segments)
 
 
-def load_view(study: Study, alone: Performance) -> LoadView:
-    """The bare load at the band's low edge, centre and high edge, and its margin against the mask."""
+def load_view(study: Study, alone: Performance, load: int = 0, source: str | None = None) -> LoadView:
+    """The bare load (the ``load``-th of several) at the band's low edge, centre and high edge, and
+    its margin against the mask."""
     freq = alone.freq
     centre = int(np.argmin(np.abs(freq - study.problem.grid.centre)))
+    zl = study.problem.zloads[load]
     points = []
     for label, k in (("low edge", 0), ("centre", centre), ("high edge", freq.size - 1)):
-        z = complex(study.problem.zload[k])
+        z = complex(zl[k])
         rl = float(alone.return_loss_db[k])
         points.append(LoadPoint(label=label, freq_hz=float(freq[k]), r_ohm=z.real, x_ohm=z.imag, return_loss_db=rl,
                                 vswr=vswr_of_rl(rl)))
-    return LoadView(source=_load_source(study), points=tuple(points), unmatched_margin_db=alone.margin_db,
+    return LoadView(source=_load_source(study) if source is None else source, points=tuple(points),
+                    unmatched_margin_db=alone.margin_db,
                     worst_return_loss_db=alone.worst_rl_db, worst_freq_hz=float(freq[alone.worst_index]),
                     meets_mask=alone.margin_db >= 0.0)
 
@@ -154,16 +170,33 @@ def verdict_of(margin_db: float, power: PowerCheck | None) -> str:
 
 
 def design_doc(study: Study, design: Design, perf: Performance, rank: int, power: PowerCheck | None,
-               alternative: str = "") -> DesignDoc:
-    """Everything about one design, from its one :func:`performance` evaluation (``study``: the study of
-    the network it belongs to; ``alternative``: that network's name in a study with alternatives)."""
+               each: Sequence[Performance] = (), alternative: str = "") -> DesignDoc:
+    """Everything about one design, from its one :func:`performance` evaluation (``perf``; with
+    several loads, ``each`` load's, and ``perf`` is the worst load's).  ``study``: the study of the
+    network it belongs to; ``alternative``: that network's name in a study with alternatives."""
+    problem = study.problem
+    robustness = monte_carlo(problem, design, study.spread)
+    per_load: tuple[LoadMargin, ...] = ()
+    share = met = worst = None
+    if problem.several:
+        yields = robustness.load_yields or (None,) * problem.n_loads
+        per_load = tuple(LoadMargin(load=name, margin_db=pf.margin_db, worst_return_loss_db=pf.worst_rl_db,
+                                    worst_freq_hz=float(pf.freq[pf.worst_index]), meets_mask=pf.margin_db >= 0.0,
+                                    yield_frac=y)
+                         for name, pf, y in zip(problem.names, each, yields, strict=True))
+        margins = np.array([[lm.margin_db for lm in per_load]])
+        share = float(problem.share_of(margins)[0])
+        met = int(np.sum(margins >= 0.0))
+        worst = per_load[int(np.argmin(margins[0]))].load
     return DesignDoc(
         rank=rank, verdict=verdict_of(design.margin_db, power), margin_db=design.margin_db,
         worst_return_loss_db=perf.worst_rl_db, worst_freq_hz=float(perf.freq[perf.worst_index]),
-        max_network_loss_db=float(np.nanmax(perf.network_loss_db)), total_length_wl=design.length_wl,
+        max_network_loss_db=float(np.nanmax([np.nanmax(pf.network_loss_db) for pf in (each or [perf])])),
+        total_length_wl=design.length_wl,
         trial=design.trial, choice=Choice(tuple(design.choice.medium), tuple(design.choice.short)),
-        u=tuple(float(x) for x in design.u), elements=tuple(describe(study.problem, design)),
-        robustness=monte_carlo(study.problem, design, study.spread), power=power, alternative=alternative,
+        u=tuple(float(x) for x in design.u), elements=tuple(describe(problem, design)),
+        robustness=robustness, power=power, load_margins=per_load, share=share, loads_met=met, worst_load=worst,
+        alternative=alternative,
     )
 
 
@@ -174,6 +207,9 @@ def _mhz(hz: float) -> str:
 def verdict_line(verdict: str, designs: Sequence[DesignDoc], load: LoadView, rated: Rated,
                  drive_w: float | None) -> str:
     """The study's verdict and its reason, in one line."""
+    if load.meets_mask and designs and designs[0].load_margins:
+        return (f"PASS: no network needed: every bare load meets the mask, the worst by "
+                f"{load.unmatched_margin_db:+.2f} dB; the designs found are listed all the same")
     if load.meets_mask:
         return (f"PASS: no network needed: the bare load meets the mask by {load.unmatched_margin_db:+.2f} dB "
                 f"(worst return loss {load.worst_return_loss_db:.2f} dB at {_mhz(load.worst_freq_hz)}); "
@@ -181,8 +217,18 @@ def verdict_line(verdict: str, designs: Sequence[DesignDoc], load: LoadView, rat
     if not designs:
         return "FAIL: the search produced no design"
     best = designs[0]
+    if best.load_margins and verdict == FAIL:
+        n = len(best.load_margins)
+        weighted = (f" ({100 * best.share:.0f} % of the weight)" if best.share is not None
+                    and abs(best.share - (best.loads_met or 0) / n) > 1e-9 else "")
+        return (f"FAIL: the best design meets the mask on {best.loads_met} of {n} loads{weighted}; it misses on "
+                f"{best.worst_load} by {-best.margin_db:.2f} dB (worst return loss {best.worst_return_loss_db:.2f} dB "
+                f"at {_mhz(best.worst_freq_hz)})")
     if verdict == PASS:
         ratings = f", within every rating at {drive_w:g} W" if drive_w is not None else ""
+        if best.load_margins:
+            return (f"PASS: the best design meets the mask on all {len(best.load_margins)} loads, by "
+                    f"{best.margin_db:+.2f} dB on the worst ({best.worst_load}){ratings}")
         return f"PASS: the best design meets the mask by {best.margin_db:+.2f} dB{ratings}"
     if verdict == FAIL_RATING:
         assert best.power is not None
@@ -203,13 +249,17 @@ def verdict_line(verdict: str, designs: Sequence[DesignDoc], load: LoadView, rat
 
 @dataclass(frozen=True)
 class Built:
-    """The summary document with the band figures it was made from (for the plots); ``studies`` holds,
-    per ranked design, the study of the network it belongs to (its alternative's, or the study)."""
+    """The summary document with the band figures it was made from (for the plots): each ranked
+    design with its performance (the worst load's, with several), the bare load (the worst alone),
+    per ranked design the study of the network it belongs to (its alternative's, or the study), and
+    with several loads, the best design's performance on each load and every bare load."""
 
     doc: SummaryDoc
     ranked: list[tuple[Design, Performance]]
     load: Performance
     studies: list[Study]
+    best_each: list[Performance] = field(default_factory=list)
+    loads_alone: list[Performance] = field(default_factory=list)
 
 
 def _rated_across(study: Study, outcome: SearchOutcome) -> tuple[list[tuple[str, Study, Design, PowerCheck | None]],
@@ -236,17 +286,35 @@ def build_summary(study: Study, outcome: SearchOutcome, warnings: Sequence[str] 
     """Rank, evaluate each design once, and assemble the summary document."""
     problem = study.problem
     entries, rated = _rated_across(study, outcome)
-    ranked = [(d, performance(sub.problem, d), pc) for _, sub, d, pc in entries]
-    designs = tuple(design_doc(sub, d, perf, k + 1, pc, name)
-                    for k, ((name, sub, _, _), (d, perf, pc)) in enumerate(zip(entries, ranked, strict=True)))
-    alone = bare_load(problem)
-    load = load_view(study, alone)
+    if problem.several:
+        each = [performances(sub.problem, d) for _, sub, d, _ in entries]
+        ranked = [(d, min(ps, key=lambda pf: pf.margin_db), pc)
+                  for (_, _, d, pc), ps in zip(entries, each, strict=True)]
+    else:
+        each = [[] for _ in entries]
+        ranked = [(d, performance(sub.problem, d), pc) for _, sub, d, pc in entries]
+    designs = tuple(design_doc(sub, d, perf, k + 1, pc, ps, name)
+                    for k, ((name, sub, _, _), (d, perf, pc), ps) in enumerate(zip(entries, ranked, each, strict=True)))
+    cases: tuple[LoadCase, ...] = ()
+    alone_each: list[Performance] = []
+    if problem.several:
+        alone_each = [bare_load(problem, k) for k in range(problem.n_loads)]
+        cases = tuple(LoadCase(name=src.name, weight=src.weight, source=src.text,
+                               alone=load_view(study, pf, k, src.text))
+                      for k, (src, pf) in enumerate(zip(study.loads, alone_each, strict=True)))
+        worst = int(np.argmin([pf.margin_db for pf in alone_each]))
+        alone = alone_each[worst]
+        load = load_view(study, alone, worst, f"{problem.n_loads} loads; the worst alone: {problem.names[worst]} "
+                                              f"({study.loads[worst].text})")
+    else:
+        alone = bare_load(problem)
+        load = load_view(study, alone)
     verdict = PASS if load.meets_mask else (designs[0].verdict if designs else FAIL)
     sheet = None
     notes = list(warnings)
     if designs:
         best, perf, power = ranked[0]
-        sheet = build_sheet(entries[0][1], best, designs[0].elements, perf)
+        sheet = build_sheet(entries[0][1], best, designs[0].elements, each[0] if problem.several else perf)
         notes += stock_warnings(sheet) + rating_warnings(power)
     doc = SummaryDoc(
         study=problem.name, description=study.description, file=str(study.path), inputs_digest=study.digest,
@@ -262,9 +330,10 @@ def build_summary(study: Study, outcome: SearchOutcome, warnings: Sequence[str] 
                          stopped_early=outcome.stopped_early, seeds=tuple(s.origin for s in outcome.seeds),
                          settings=dict(study.search.__dict__)),
         tolerance=study.spread, drive_w=study.drive_w, warnings=tuple(notes), build=sheet,
-        alternatives=compare(study, designs, outcome),
+        alternatives=compare(study, designs, outcome), loads=cases, load_rule=problem.load_rule,
     )
-    return Built(doc, [(d, perf) for d, perf, _ in ranked], alone, [sub for _, sub, _, _ in entries])
+    return Built(doc, [(d, perf) for d, perf, _ in ranked], alone, [sub for _, sub, _, _ in entries],
+                 list(each[0]) if each else [], alone_each)
 
 
 def summary_document(study: Study, outcome: SearchOutcome, warnings: Sequence[str] = ()) -> SummaryDoc:
@@ -286,7 +355,19 @@ def write_results(study: Study, outcome: SearchOutcome, out_root: Path,
     doc = built.doc
     caption = Caption(doc.study, doc.invented)
     files: list[Path] = []
-    if built.ranked:
+    if built.ranked and problem.several:
+        per_load = list(zip(problem.names, built.best_each, strict=True))
+        files.append(plot_return_loss_loads("#1", per_load, problem.grid, folder / "return_loss.png",
+                                            segments=list(problem.grid.segments), caption=caption, many=MANY_LOADS))
+        worst_first = sorted(range(len(per_load)), key=lambda k: per_load[k][1].margin_db)[:MANY_LOADS]
+        shown = [(f"#1 on {per_load[k][0]}", per_load[k][1]) for k in sorted(worst_first)]
+        worst_alone = min(doc.loads, key=lambda c: c.alone.unmatched_margin_db).name
+        files.append(plot_smith(shown, folder / "smith.png", problem.z_sys,
+                                min_rl_db=float(problem.grid.min_rl_db.max()), load=built.load, caption=caption,
+                                load_label=f"{worst_alone} alone, the worst (no network)"))
+        files += list(export_touchstone(built.studies[0].problem, built.ranked[0][0], folder, invented=doc.invented,
+                                        per_load=matched_input_files(doc)))
+    elif built.ranked:
         perfs = [(f"#{k + 1}", perf) for k, (_, perf) in enumerate(built.ranked[:PLOTTED_DESIGNS])]
         files.append(plot_return_loss(perfs, problem.grid, folder / "return_loss.png",
                                       segments=list(problem.grid.segments), load=built.load, caption=caption))

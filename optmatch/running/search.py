@@ -44,6 +44,9 @@ YIELD_DRAWS = 64  # tolerance draws per trial for the yield objective (common ra
 YIELD_TIE = 0.5 / YIELD_DRAWS  # the p10 term stays below one build's worth of yield
 YIELD_P10_SCALE_DB = 3.0
 YIELD_SKIP_DB = 3.0  # a new choice whose nominal best fails by more than this skips the yield search
+SHARE_TIE_SCALE_DB = 3.0  # the share objective's trial value: share + a term below one load, from the worst margin
+MAX_SEEDS = 48  # closed-form seeds kept over every load (after removing near-duplicates)
+SEEDS_APART = 0.02  # seeds of one choice closer than this (unit-cube max norm) are one seed
 EXACT_GRADIENTS = True  # polish with exact gradients (False: the older forward-difference polish, for benchmarks)
 
 ProgressFn = Callable[[int, int, float | None], None]
@@ -64,7 +67,7 @@ class SearchOutcome:
     stopped_early: bool
     # every distinct design found, ranked (designs: the first keep)
     distinct: list[Design] = field(default_factory=list)
-    ranked_by: str = "margin"  # the objective that ranked ``designs``: margin, yield or pareto
+    ranked_by: str = "margin"  # what ranked ``designs``: margin, yield, pareto, or share (of several loads met)
 
 
 BUDGET_KEYS = ("trials", "time", "keep", "target_margin")
@@ -139,7 +142,14 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
     starts = _starts(seeds) if use_seeds else ["random"]
     pareto = settings.objective == "pareto"
     by_yield = settings.objective == "yield"
+    by_share = problem.load_rule == "share"
     spread = spread or Spread()
+    nl, nf = problem.n_loads, problem.grid.freq.size
+
+    def hold(s_row: np.ndarray) -> np.ndarray:
+        """Points of the loads a polish start meets: the share polish keeps them met."""
+        met = np.max(s_row.reshape(nl, nf), axis=1) <= 0.0
+        return np.repeat(met, nf)
 
     def objective(trial: optuna.Trial):
         picks = {name: trial.suggest_categorical(name, options) for name, _, options in space}
@@ -165,7 +175,7 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
         avoid = np.array([k["u"] for k in known]) if known and problem.network.dim else None
 
         def score(u: np.ndarray) -> np.ndarray:
-            return problem.margins(u, choice) - penalty * problem.length_wl(u, choice)
+            return problem.objective(u, choice) - penalty * problem.length_wl(u, choice)
 
         def shortfall(u: np.ndarray) -> np.ndarray:
             return problem.shortfalls_db(u, choice) + (penalty * problem.length_wl(u, choice))[:, None]
@@ -176,7 +186,8 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
         res = inner_search(score, shortfall, problem.network.dim, rng, seeds=init,
                            population=settings.population, generations=settings.generations,
                            shortfall_grad=shortfall_grad if EXACT_GRADIENTS else None,
-                           avoid=avoid, avoid_radius=TABU_RADIUS, avoid_db=TABU_DB)
+                           avoid=avoid, avoid_radius=TABU_RADIUS, avoid_db=TABU_DB,
+                           hold=hold if by_share and nl > 1 else None)
         candidates, evaluations = res.u, res.evaluations
         yield_of = None
         if by_yield and problem.network.dim:
@@ -206,9 +217,15 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
             snaps = problem.network.snap_candidates(u)  # cut lengths to whole cut steps, re-checked
             u = snaps[int(np.argmax(score(snaps)))] if len(snaps) > 1 else snaps[0]
             if all(np.max(np.abs(u - np.array(k["u"])), initial=0.0) > KEPT_APART for k in kept + repeats):
-                m = float(problem.margins(u, choice)[0])
                 length = float(problem.length_wl(u, choice)[0])
-                doc = {"u": [float(x) for x in u], "margin_db": m, "length_wl": length}
+                if problem.several:
+                    lm = problem.load_margins(u, choice)
+                    m = float(np.min(lm))
+                    doc = {"u": [float(x) for x in u], "margin_db": m, "length_wl": length,
+                           "load_margins_db": [float(x) for x in lm[0]], "share": float(problem.share_of(lm)[0])}
+                else:
+                    m = float(problem.margins(u, choice)[0])
+                    doc = {"u": [float(x) for x in u], "margin_db": m, "length_wl": length}
                 if yield_of is not None:
                     y, p10 = yield_of(u[None, :])
                     doc.update(yield_frac=float(y[0]), margin_p10_db=float(p10[0]))
@@ -222,12 +239,22 @@ def make_objective(problem: Problem, settings: SearchSettings, seeds: list[Seed]
         if by_yield and "yield_frac" in kept[0]:
             best = max(kept, key=lambda d: (d["yield_frac"], d["margin_p10_db"], -d["length_wl"]))
             return best["yield_frac"] + YIELD_TIE * (0.5 + 0.5 * np.tanh(best["margin_p10_db"] / YIELD_P10_SCALE_DB))
+        if by_share and "share" in kept[0]:
+            best = max(kept, key=lambda d: (d["share"], d["margin_db"], -d["length_wl"]))
+            return share_value(problem, best["share"], best["margin_db"])
         best = max(kept, key=lambda d: d["margin_db"] - penalty * d["length_wl"])
         if pareto:
             return best["margin_db"], best["length_wl"]
         return best["margin_db"]
 
     return objective
+
+
+def share_value(problem: Problem, share: float, margin_db: float) -> float:
+    """A trial's value under the share objective: the share, plus a term below one load's share
+    that grows with the worst margin (so optuna and the progress bar read the share)."""
+    tie = 1e-3 * problem.share_step  # small enough that 100 × value rounds to the share
+    return float(share + tie * (0.5 + 0.5 * np.tanh(margin_db / SHARE_TIE_SCALE_DB)))
 
 
 def _distinct(u: np.ndarray, count: int, apart: float = DISTINCT_U) -> np.ndarray:
@@ -280,7 +307,8 @@ def enqueue_seeds(ost: optuna.Study, problem: Problem, seeds: list[Seed], budget
 
 def collect_designs(ost: optuna.Study, problem: Problem | None = None, spread: Spread | None = None,
                     objective: str = "margin") -> tuple[list[Design], list[tuple[float, float]]]:
-    """Every design kept by every complete trial, ranked: best margin first, shorter on ties.
+    """Every design kept by every complete trial, ranked: best margin first, shorter on ties (with
+    several loads and the ``share`` rule: the largest share of loads first, then the margin).
 
     With ``objective`` ``yield`` (and the ``problem`` and ``spread``), the distinct designs are
     ranked by their yield on the robustness view's draws, then the 10th-percentile build margin,
@@ -294,8 +322,12 @@ def collect_designs(ost: optuna.Study, problem: Problem | None = None, spread: S
             if key in seen:
                 continue
             seen.add(key)
-            designs.append(Design(choice, tuple(d["u"]), d["margin_db"], d["length_wl"], t.number))
-    designs.sort(key=lambda d: (-round(d.margin_db, 2), d.length_wl, d.trial))
+            designs.append(Design(choice, tuple(d["u"]), d["margin_db"], d["length_wl"], t.number,
+                                  tuple(d.get("load_margins_db") or ()), d.get("share")))
+    if problem is not None and problem.load_rule == "share" and problem.several:
+        designs.sort(key=lambda d: (-round(d.share or 0.0, 9), -round(d.margin_db, 2), d.length_wl, d.trial))
+    else:
+        designs.sort(key=lambda d: (-round(d.margin_db, 2), d.length_wl, d.trial))
     points = [(d.margin_db, d.length_wl) for d in designs]
     # keep designs a builder would tell apart: another choice, or some value ≥ 1 % of its range away
     distinct: list[Design] = []
@@ -321,9 +353,23 @@ def pareto_front(designs: list[Design]) -> list[Design]:
 
 
 def study_seeds(problem: Problem) -> list[Seed]:
-    """Closed-form seeds for the load at the grid point nearest the reference frequency."""
-    zload = complex(problem.zload[np.argmin(np.abs(problem.grid.freq - problem.f_ref))])
-    return closed_form_seeds(problem.network, zload, problem.z_sys, problem.f_ref)
+    """Closed-form seeds for the load at the grid point nearest the reference frequency; with
+    several loads, every load's seeds, taken in turn (the first of each load, then the second, ...),
+    less those within :data:`SEEDS_APART` of one already taken with the same choice, at most
+    :data:`MAX_SEEDS`."""
+    k = int(np.argmin(np.abs(problem.grid.freq - problem.f_ref)))
+    if not problem.several:
+        return closed_form_seeds(problem.network, complex(problem.zload[k]), problem.z_sys, problem.f_ref)
+    each = [closed_form_seeds(problem.network, complex(z[k]), problem.z_sys, problem.f_ref) for z in problem.zloads]
+    out: list[Seed] = []
+    for rank in range(max((len(s) for s in each), default=0)):
+        for name, seeds in zip(problem.names, each, strict=True):
+            if rank >= len(seeds) or len(out) >= MAX_SEEDS:
+                continue
+            seed = seeds[rank]
+            if all(seed.choice != o.choice or np.max(np.abs(seed.u - o.u), initial=0.0) > SEEDS_APART for o in out):
+                out.append(Seed(seed.choice, seed.u, f"{seed.origin} (load {name})"))
+    return out
 
 
 def run_search(
@@ -361,5 +407,5 @@ def run_search(
         seeds=seeds,
         stopped_early=stopped_early,
         distinct=designs,
-        ranked_by=settings.objective,
+        ranked_by="share" if problem.several and problem.load_rule == "share" else settings.objective,
     )

@@ -22,6 +22,9 @@ MAX_GENERATIONS = 100_000
 MAX_SAMPLES = 1_000_000  # tolerance Monte Carlo builds
 MAX_SEED = 2**32 - 1  # numpy and optuna seeds
 MAX_STOCK_COUNT = 1_000_000
+MAX_LOADS = 1_000  # loads in one study (named entries and files matched by patterns together)
+MAX_LOAD_POINTS = 200_000  # loads × grid points: what one candidate's evaluation covers
+MAX_LOAD_BYTES = 256 * 2**20  # the Touchstone files of all the loads together
 MEMORY_BUDGET_BYTES = 2 * 1024**3  # one study's peak working memory
 
 # Working-memory model, measured with tracemalloc on the engine (our own figures): the engine walks
@@ -35,8 +38,11 @@ BYTES_PER_ELEMENT = 8 * 3
 
 
 def engine_bytes(grid_points: int, rows: int) -> int:
-    """Working set of the engine for ``rows`` candidates on ``grid_points`` frequencies."""
-    return 16 * ENGINE_ARRAYS * min(rows, ENGINE_CHUNK) * grid_points
+    """Working set of the engine for ``rows`` candidates on ``grid_points`` frequencies (every
+    load's grid together); the engine takes fewer candidates per chunk on long grids."""
+    from optmatch.engine.cascade import chunk_for
+
+    return 16 * ENGINE_ARRAYS * min(rows, ENGINE_CHUNK, chunk_for(grid_points)) * grid_points
 
 
 def search_bytes(population: int, dim: int, elements: int, grid_points: int) -> int:

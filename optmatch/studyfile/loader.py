@@ -11,6 +11,7 @@ Units after resolution: Hz, Ω, s (delay), m (physical length), dB, seconds of w
 
 from __future__ import annotations
 
+import fnmatch
 import hashlib
 import json
 import math
@@ -18,6 +19,7 @@ import os
 import re
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 from typing import Any, Literal, get_args
 
@@ -45,6 +47,7 @@ from optmatch.studyfile.schema import (
     Frequency,
     LengthRange,
     LineModel,
+    LoadEntryModel,
     LoadModel,
     LumpedModel,
     MaskModel,
@@ -56,6 +59,8 @@ from optmatch.studyfile.schema import (
     StudyModel,
     ToleranceModel,
     Z0Range,
+    _file_pattern,
+    load_name_problem,
     study_name_problem,
 )
 from optmatch.studyfile.shelf import (
@@ -97,6 +102,24 @@ class SearchSettings:
     population: int = 64
     generations: int = 60
     objective: Literal["margin", "yield", "pareto"] = "margin"
+    loads: Literal["worst", "share"] = "worst"
+
+
+LoadFn = Callable[[np.ndarray], np.ndarray]
+
+
+@dataclass(frozen=True)
+class LoadSource:
+    """One load of a study as resolved: its ``name``, ``weight``, where it came from (``text``, as
+    the file gives it), its impedance as a function of frequency (``fn``: Hz -> Ω) and the range
+    where that is known (``range_hz``; (0, inf) for a model), and its Touchstone ``path`` if any."""
+
+    name: str
+    weight: float
+    text: str
+    fn: LoadFn = field(repr=False)
+    range_hz: tuple[float, float]
+    path: Path | None = None
 
 
 @dataclass(frozen=True)
@@ -114,6 +137,7 @@ class Study:
     drive_w: float | None = None  # available source power for the power check (W)
     spread: Spread = Spread()  # build tolerances for the yield Monte Carlo
     notes: tuple[str, ...] = ()  # what the loader read into the file (e.g. a bare cable designation's class)
+    loads: tuple[LoadSource, ...] = ()  # every load, in the problem's order (one for ``load:``)
     alternatives: tuple[Alternative, ...] = ()  # several named networks (then ``problem`` is the first one's)
 
     def alternative(self, name: str) -> Study:
@@ -329,36 +353,245 @@ def _grid_points(mask: MaskModel) -> int:
     return sum(1 if s.from_ == s.to else (s.points if s.points is not None else mask.points) for s in mask.segments)
 
 
-def _touchstone(raw: dict, study_dir: Path, probs: _Problems) -> tuple[TabulatedLoad | None, bytes]:
-    """The measured load a study names (read and checked even when other keys are wrong)."""
+Given = dict[str, TabulatedLoad]
+"""Measured loads handed over in memory (the Python API), by the ``touchstone`` text that names them."""
+
+
+@dataclass(frozen=True)
+class _Measured:
+    """A Touchstone load read from the raw file: the entry's key path, its name (files: the file
+    name), the data, the file (None when handed over in memory) and its bytes (for the digest)."""
+
+    where: str
+    name: str | None
+    data: TabulatedLoad
+    path: Path | None
+    raw_bytes: bytes
+
+
+def _resolve_path(name: str, study_dir: Path) -> Path:
+    p = Path(name)
+    return p if p.is_absolute() else study_dir / p
+
+
+def _read_one(name: str, study_dir: Path, given: Given) -> tuple[TabulatedLoad, Path | None, bytes]:
+    if name in given:
+        tab = given[name]
+        return tab, None, np.ascontiguousarray(tab.freq_hz).tobytes() + np.ascontiguousarray(tab.gamma).tobytes()
+    path = _resolve_path(name, study_dir)
+    tab = read_one_port(path)
+    return tab, path, path.read_bytes()
+
+
+def _stem_name(path: Path) -> str:
+    """A load name from a file name: its stem, with characters a name may not hold replaced by '_'."""
+    stem = re.sub(r"[^A-Za-z0-9_.-]+", "_", path.stem).strip("_")[:64]
+    return stem if stem and load_name_problem(stem) is None else "load"
+
+
+MAX_PATTERN_NAMES = 100_000  # names a pattern may look at before it is refused (work is bounded)
+_MAGIC = re.compile(r"[*?[]")
+
+
+def expand_pattern(pattern: str, study_dir: Path, limit: int) -> list[Path]:
+    """The files a ``files`` pattern matches, sorted by name: relative to ``study_dir`` and inside it
+    (following symbolic links), regular files only, at most ``limit``.  Each part of the pattern
+    between slashes is matched against one folder's names (``*``, ``?``, ``[..]``; a name starting
+    with ``.`` only by a part that does too).  Raises LoadError (one line)."""
+    parts = [q for q in re.split(r"[/\\]", pattern.strip()) if q not in ("", ".")]
+    if not parts:
+        raise loads.LoadError(f"{pattern!r} names no file; give a pattern such as measured/unit_*.s1p")
+    base = study_dir.resolve()
+    looked = 0
+    current = [study_dir]
+    for k, part in enumerate(parts):
+        last = k == len(parts) - 1
+        nxt: list[Path] = []
+        for folder in current:
+            if not _MAGIC.search(part):
+                candidates = [folder / part]
+            else:
+                try:
+                    names = sorted(os.listdir(folder))
+                except OSError:
+                    continue
+                looked += len(names)
+                if looked > MAX_PATTERN_NAMES:
+                    raise loads.LoadError(f"{pattern!r} looks at more than {MAX_PATTERN_NAMES:,} names; narrow it")
+                candidates = [folder / n for n in names
+                              if fnmatch.fnmatchcase(n, part) and (part.startswith(".") or not n.startswith("."))]
+            for c in candidates:
+                if (c.is_file() if last else c.is_dir()):
+                    nxt.append(c)
+        current = nxt
+    found: list[Path] = []
+    for match in current:
+        if not match.resolve().is_relative_to(base):
+            raise loads.LoadError(f"{pattern!r} matches {match.relative_to(study_dir)}, which leads outside the "
+                                  f"study file's folder")
+        found.append(match)
+        if len(found) > limit:
+            raise loads.LoadError(f"{pattern!r} matches more than {limit:,} files; at most {limits.MAX_LOADS:,} "
+                                  "loads in a study")
+    if not found:
+        raise loads.LoadError(f"{pattern!r} matches no file in {study_dir if str(study_dir) else '.'}")
+    return found
+
+
+def _measured_loads(raw: dict, study_dir: Path, probs: _Problems, given: Given) -> list[_Measured]:
+    """Every Touchstone load the raw file names (``load.touchstone``, ``loads[i].touchstone`` and
+    the files of ``loads[i].files``), read and checked even when other keys are wrong."""
+    wanted: list[tuple[str, str | None, str]] = []  # (where, name, touchstone text)
+    patterns: list[tuple[str, str]] = []  # (where, pattern)
     load = raw.get("load")
-    name = load.get("touchstone") if isinstance(load, dict) else None
-    if not isinstance(name, str) or not name.strip():
-        return None, b""
-    ts_path = Path(name)
-    if not ts_path.is_absolute():
-        ts_path = study_dir / ts_path
-    tab = probs.guard("load.touchstone", lambda: read_one_port(ts_path))
-    if tab is None:
-        return None, b""
-    return tab, ts_path.read_bytes()
+    if isinstance(load, dict) and isinstance(load.get("touchstone"), str) and load["touchstone"].strip():
+        wanted.append(("load.touchstone", None, load["touchstone"]))
+    entries = raw.get("loads")
+    if isinstance(entries, list):
+        for i, entry in enumerate(entries):
+            if not isinstance(entry, dict):
+                continue
+            ts, pattern = entry.get("touchstone"), entry.get("files")
+            if isinstance(ts, str) and ts.strip():
+                name = entry.get("name") if isinstance(entry.get("name"), str) else None
+                wanted.append((f"loads[{i}].touchstone", name, ts))
+            elif isinstance(pattern, str):
+                patterns.append((f"loads[{i}].files", pattern))
+    out: list[_Measured] = []
+    room = limits.MAX_LOADS - (len(entries) - len(patterns) if isinstance(entries, list) else 0)
+    matched: list[tuple[str, Path]] = []
+    for where, pattern in patterns:
+        try:
+            _file_pattern(pattern)
+        except ValueError:
+            continue  # the schema reports it
+        if room <= 0:
+            probs.add(where, f"no room for more loads: at most {limits.MAX_LOADS:,} in a study")
+            return out
+        files = probs.guard(where, partial(expand_pattern, pattern, study_dir, room))
+        if files is None:
+            continue
+        room -= len(files)
+        matched += [(where, f) for f in files]
+    total = sum(f.stat().st_size for _, f in matched)
+    if total > limits.MAX_LOAD_BYTES:
+        probs.add("loads", f"the matched files hold {total / 2**20:.0f} MiB; at most "
+                           f"{limits.MAX_LOAD_BYTES // 2**20} MiB of load data in a study")
+        return out
+    for where, name, text in wanted:
+        got = probs.guard(where, partial(_read_one, text, study_dir, given))
+        if got is not None:
+            out.append(_Measured(where, name, *got))
+    for where, path in matched:
+        got = probs.guard(where, partial(read_one_port, path))
+        if got is not None:
+            out.append(_Measured(where, _stem_name(path), got, path, path.read_bytes()))
+    return out
 
 
-def _zload(load: LoadModel, grid: Grid | None, measured: TabulatedLoad | None,
-           probs: _Problems) -> np.ndarray | None:
-    """Load impedance on the grid (Ω)."""
-    if grid is None:
-        return None
-    if load.touchstone is not None:
-        return probs.guard("load.touchstone", lambda: measured(grid.freq)) if measured is not None else None
-    z = load.impedance
-    if z is not None:
-        return probs.guard("load.impedance", lambda: loads.fixed_impedance(grid.freq, z))
+def _model_fn(load: LoadModel) -> LoadFn:
+    """A load model (impedance or RLC) as a function of frequency (Hz -> Ω)."""
+    if load.impedance is not None:
+        z = load.impedance
+        return lambda f: loads.fixed_impedance(f, z)
     rlc = load.series_rlc or load.parallel_rlc
-    assert rlc is not None  # the model holds exactly one load kind
-    kind = "series_rlc" if load.series_rlc is not None else "parallel_rlc"
-    fn = loads.series_rlc if kind == "series_rlc" else loads.parallel_rlc
-    return probs.guard(f"load.{kind}", lambda: fn(grid.freq, rlc.r, rlc.l, rlc.c))
+    assert rlc is not None
+    fn = loads.series_rlc if load.series_rlc is not None else loads.parallel_rlc
+    return lambda f: fn(f, rlc.r, rlc.l, rlc.c)
+
+
+def _load_text(load: LoadModel | LoadEntryModel) -> str:
+    """How the file gives a load, in one line (``touchstone: data/x.s1p``, ``impedance: (60-80j)``)."""
+    kind = load.kind
+    value = getattr(load, kind)
+    if isinstance(value, BaseModel):
+        value = ", ".join(f"{k}: {v:g}" for k, v in value.model_dump().items() if v is not None)
+        return f"{kind}: {{{value}}}"
+    return f"{kind}: {value}"
+
+
+def _sources(model_load: LoadModel | None, entries: list[LoadEntryModel] | None,
+             measured: list[_Measured]) -> list[tuple[str, LoadSource]] | None:
+    """Every load as (key path, source), in the file's order (a pattern's files in name order).
+    None when a load could not be read (its problem is already said)."""
+    by_where: dict[str, list[_Measured]] = {}
+    for m in measured:
+        by_where.setdefault(m.where, []).append(m)
+    out: list[tuple[str, LoadSource]] = []
+    ok = True
+    if model_load is not None:
+        if model_load.touchstone is not None:
+            got = by_where.get("load.touchstone")
+            if not got:
+                return None
+            m = got[0]
+            out.append(("load.touchstone", LoadSource("load", 1.0, _load_text(model_load), m.data, m.data.range_hz,
+                                                      m.path)))
+        else:
+            out.append((f"load.{model_load.kind}", LoadSource("load", 1.0, _load_text(model_load),
+                                                              _model_fn(model_load), (0.0, math.inf))))
+        return out
+    for i, entry in enumerate(entries or ()):
+        where = f"loads[{i}].{entry.kind}"
+        if entry.kind in ("touchstone", "files"):
+            got = by_where.get(where)
+            if not got:
+                ok = False
+                continue
+            for m in got:
+                text = _load_text(entry) if entry.kind == "touchstone" else f"files: {m.path.name if m.path else ''}"
+                out.append((where, LoadSource(entry.name or m.name or "load", entry.weight, text, m.data,
+                                              m.data.range_hz, m.path)))
+        else:
+            out.append((where, LoadSource(entry.name or "load", entry.weight, _load_text(entry),
+                                          _model_fn(entry.as_load()), (0.0, math.inf))))
+    return out if ok else None
+
+
+def _check_load_names(raw: dict, measured: list[_Measured], probs: _Problems) -> None:
+    """Every load name of the raw file given once: each entry's ``name``, and the file names a
+    ``files`` pattern matches (checked whatever else is wrong)."""
+    entries = raw.get("loads")
+    if not isinstance(entries, list):
+        return
+    seen: dict[str, str] = {}
+    for i, entry in enumerate(entries):
+        if not isinstance(entry, dict):
+            continue
+        found: list[tuple[str | None, str | None]]
+        if "files" in entry:
+            found = [(m.name, m.path.name if m.path else "") for m in measured if m.where == f"loads[{i}].files"]
+        elif isinstance(entry.get("name"), str):
+            found = [(entry["name"], None)]
+        else:
+            continue
+        for name, file in found:
+            if name is None:
+                continue
+            if name not in seen:
+                seen[name] = f"loads[{i}]"
+            elif file is not None:
+                probs.add(f"loads[{i}].files", f"the file {file} gives the load name {name!r}, which {seen[name]} "
+                                               "already has; rename the file or give the loads by name")
+            else:
+                probs.add(f"loads[{i}].name", f"{name!r} is the name of {seen[name]} too; give each load its own name")
+
+
+def _check_coverage(measured: list[_Measured], grid: Grid | None, probs: _Problems) -> None:
+    """Every measured load covers the mask's grid (checked whatever else is wrong)."""
+    if grid is not None:
+        for m in measured:
+            probs.guard(m.where, partial(m.data, grid.freq))
+
+
+def _load_rows(sources: list[tuple[str, LoadSource]] | None, grid: Grid | None, probs: _Problems) -> np.ndarray | None:
+    """Every load's impedance on the grid (Ω), (L, F); a load that does not cover the mask is a problem."""
+    if sources is None or grid is None:
+        return None
+    rows = [probs.guard(where, partial(src.fn, grid.freq)) for where, src in sources]
+    if any(r is None for r in rows):
+        return None
+    return np.array(rows, dtype=complex)
 
 
 def _basis(length: Length) -> LengthBasis:
@@ -541,9 +774,10 @@ def _check_names(raw: dict, catalog: dict[str, Cable], probs: _Problems) -> None
 # ---------------------------------------------------------------- bounds on work
 
 
-def _check_work(parts: dict[str, Any], elements: tuple[ElementSpec, ...] | None, probs: _Problems) -> None:
+def _check_work(parts: dict[str, Any], elements: tuple[ElementSpec, ...] | None, probs: _Problems,
+                n_loads: int = 1) -> None:
     """Refuse, before anything runs, a study whose search or robustness view is beyond the caps or would
-    not fit in memory; the message states the estimate."""
+    not fit in memory; the message states the estimate.  Every load adds its own grid."""
     mask: MaskModel | None = parts.get("mask")
     search: SearchModel | None = parts.get("search")
     tol: ToleranceModel | None = parts.get("tolerance")
@@ -552,6 +786,8 @@ def _check_work(parts: dict[str, Any], elements: tuple[ElementSpec, ...] | None,
         probs.add("mask", f"{points:,} grid points in all; at most {limits.MAX_GRID_POINTS:,} "
                           "(lower points on the segments)")
         return
+    if points is not None:
+        points *= n_loads
     budget = limits.MEMORY_BUDGET_BYTES
     known = points is not None and elements is not None
     dim = NetworkSpec(elements).dim if known and elements is not None else 0
@@ -603,7 +839,8 @@ def _sections(raw: dict, exc: ValidationError) -> dict[str, Any]:
     got: dict[str, Any] = {}
     for key, model in SECTION_MODELS.items():
         if key in raw and key not in bad:
-            got[key] = model.model_validate(raw[key])
+            got[key] = (model.validate_python(raw[key]) if isinstance(model, TypeAdapter)
+                        else model.model_validate(raw[key]))
         elif key not in raw and key not in bad and key in ("search", "tolerance"):
             got[key] = model()
     if "alternatives" in raw and "alternatives" not in bad:
@@ -624,26 +861,61 @@ def load_study(path: str | os.PathLike) -> Study:
     p = Path(path)
     shown = str(path)
     doc = _read_yaml(p, shown)
-    raw: dict = doc.data
-    probs = _Problems(shown, doc)
+    return _resolve(doc.data, _Problems(shown, doc), p, p.parent, {})
+
+
+def study_from_data(raw: dict, path: str | os.PathLike, shown: str | None = None,
+                    given: Given | None = None) -> Study:
+    """Validate and resolve a study given as data (the keys and values of a study file) as if it
+    were the file ``path`` (files it names are relative to that file's folder; nothing is read
+    from ``path`` itself).  ``given``: measured loads handed over in memory, by the ``touchstone``
+    text that names them.  Raises :class:`StudyFileError` listing every problem, each as
+    ``shown: key.path: problem``."""
+    p = Path(path)
+    label = shown if shown is not None else str(path)
+    if not isinstance(raw, dict):
+        raise StudyFileError([f"{label}: expected keys (name, load, mask, network, ...) at the top level, "
+                              f"found a {type(raw).__name__}"])
+    return _resolve(raw, _Problems(label, None), p, p.parent, dict(given or {}))
+
+
+def _resolve(raw: dict, probs: _Problems, p: Path, study_dir: Path, given: Given) -> Study:
+    """The whole study from its parsed data: every problem collected, then one error or the Study."""
     parts: dict[str, Any]
     try:
         model: StudyModel | None = StudyModel.model_validate(raw)
-        parts = {k: getattr(model, k) for k in ("load", "mask", "network", "alternatives", "search", "system",
+        parts = {k: getattr(model, k) for k in ("load", "loads", "mask", "network", "alternatives", "search", "system",
                                                  "reference", "shelf", "drive", "tolerance")}
+        parts = {k: v for k, v in parts.items() if not (k in ("load", "loads") and v is None)}
     except ValidationError as exc:
         model = None
         _pydantic_problems(probs, exc)
         parts = _sections(raw, exc)
+    if "load" in raw and "loads" in raw:
+        probs.add("loads", "give either load (one load) or loads (several), not both")
+    elif "load" not in raw and "loads" not in raw:
+        probs.add("load", "required key is missing (or give loads: for several loads)")
 
     # Names and files, from the raw file: reported whatever else is wrong.
-    catalog, extra_bytes = catalog_in_force(raw.get("shelf"), p.parent, probs.add)
+    catalog, extra_bytes = catalog_in_force(raw.get("shelf"), study_dir, probs.add)
     _check_names(raw, catalog, probs)
-    measured, ts_bytes = _touchstone(raw, p.parent, probs)
+    measured = _measured_loads(raw, study_dir, probs, given)
+    _check_load_names(raw, measured, probs)
 
     grid = probs.guard("mask", lambda: _grid(parts["mask"])) if "mask" in parts else None
+    _check_coverage(measured, grid, probs)
     f_ref = parts.get("reference") or (grid.centre if grid is not None else None)
-    zload = _zload(parts["load"], grid, measured, probs) if "load" in parts else None
+    sources = None
+    if ("load" in parts) != ("loads" in parts):
+        sources = _sources(parts.get("load"), parts.get("loads"), measured)
+    n_loads = len(sources) if sources is not None else 1
+    if (grid is not None and sources is not None and n_loads > 1
+            and n_loads * grid.freq.size > limits.MAX_LOAD_POINTS):
+        probs.add("loads", f"{n_loads:,} loads × {grid.freq.size:,} grid points = {n_loads * grid.freq.size:,} points "
+                           f"to evaluate per design; at most {limits.MAX_LOAD_POINTS:,} "
+                           "(fewer loads or fewer mask points)")
+        sources = None
+    zrows = _load_rows(sources, grid, probs)
     elements = None
     shelf = None
     if "shelf" in parts or "shelf" not in raw:
@@ -663,30 +935,36 @@ def load_study(path: str | os.PathLike) -> Study:
             alt_elements[alt_name] = _elements(net, f_ref, parts["system"], probs.within(f"alternatives.{alt_name}"),
                                                shelf)
     for alt_name, alt_els in alt_elements.items():
-        _check_work(parts, alt_els, probs.within(f"alternatives.{alt_name}"))
+        _check_work(parts, alt_els, probs.within(f"alternatives.{alt_name}"), n_loads)
     if not alt_elements:
-        _check_work(parts, elements, probs)
+        _check_work(parts, elements, probs, n_loads)
     if model is not None and model.name is None and study_name_problem(_default_name(p)):
         probs.file("the file name gives no usable study name; add name: to the file")
 
     if model is None or probs.lines:
         raise StudyFileError(probs.lines)
-    assert grid is not None and zload is not None and f_ref is not None
+    assert grid is not None and zrows is not None and sources is not None and f_ref is not None
     s: SearchModel = model.search
     search = SearchSettings(trials=s.trials, time_s=s.time, seed=s.seed, target_margin_db=s.target_margin,
                             keep=s.keep, population=s.population, generations=s.generations,
-                            objective=s.objective)
+                            objective=s.objective, loads=s.loads)
     assert shelf is not None
-    digest = _digest(raw, ts_bytes + extra_bytes)
+    digest = _digest(raw, b"".join(m.raw_bytes for m in measured) + extra_bytes)
+    several = model.loads is not None
+    srcs = tuple(src for _, src in sources)
 
     def study_of(els: tuple[ElementSpec, ...], study_raw: dict, alternatives: tuple[Alternative, ...] = ()) -> Study:
-        problem = Problem(name=model.name or _default_name(p), z_sys=model.system, grid=grid, zload=zload,
-                          network=NetworkSpec(els, shelf.stock_tuple()), f_ref=f_ref)
+        problem = Problem(name=model.name or _default_name(p), z_sys=model.system, grid=grid,
+                          zload=zrows if several else zrows[0],
+                          network=NetworkSpec(els, shelf.stock_tuple()), f_ref=f_ref,
+                          load_names=tuple(src.name for src in srcs) if several else (),
+                          load_weights=tuple(src.weight for src in srcs) if several else (),
+                          load_rule=s.loads)
         return Study(path=p, problem=problem, search=search, raw=study_raw, digest=digest,
                      description=model.description, cables=shelf.catalog,
                      drive_w=model.drive.power if model.drive is not None else None,
                      spread=_spread(model.tolerance, search.seed), notes=tuple(probs.notes),
-                     alternatives=alternatives)
+                     loads=srcs, alternatives=alternatives)
 
     if not alt_elements:
         assert elements is not None
@@ -710,4 +988,5 @@ def check_study(path: str | os.PathLike) -> list[str]:
     return []
 
 
-__all__ = ["Alternative", "SearchSettings", "Study", "StudyFileError", "check_study", "load_study", "key_path"]
+__all__ = ["Alternative", "LoadSource", "SearchSettings", "Study", "StudyFileError", "check_study", "expand_pattern",
+           "key_path", "load_study", "study_from_data"]

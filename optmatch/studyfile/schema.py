@@ -26,6 +26,7 @@ from pydantic import (
     StrictInt,
     StrictStr,
     Tag,
+    TypeAdapter,
     ValidationInfo,
     WithJsonSchema,
     field_validator,
@@ -534,6 +535,102 @@ class LoadModel(_Model):
         return next(k for k in LOAD_KINDS if getattr(self, k) is not None)
 
 
+LOAD_NAME_PATTERN = r"^[A-Za-z0-9_.-]+$"
+LOAD_NAME_JSON_PATTERN = r"^(?!\.+$)[A-Za-z0-9_.-]{1,64}$"
+MAX_LOAD_NAME = 64
+
+
+def load_name_problem(v: str) -> str | None:
+    """Why ``v`` cannot name a load (it names files and table rows), or None when it can."""
+    if not v:
+        return "is empty"
+    if len(v) > MAX_LOAD_NAME:
+        return f"is {len(v)} characters long; at most {MAX_LOAD_NAME}"
+    if not re.match(LOAD_NAME_PATTERN, v):
+        return f"{_short_text(v)} may hold only letters, digits, '_', '.' and '-'"
+    if set(v) == {"."}:
+        return f"{v!r} is not a name; give letters or digits"
+    return None
+
+
+def _load_name(v: str) -> str:
+    wrong = load_name_problem(v)
+    if wrong:
+        raise ValueError(wrong)
+    return v
+
+
+def _file_pattern(v: str) -> str:
+    text = v.strip()
+    if not text:
+        raise ValueError("give a file pattern relative to the study file, e.g. measured/unit_*.s1p")
+    if text.startswith(("/", "\\")) or re.match(r"^[A-Za-z]:", text):
+        raise ValueError("give a pattern relative to the study file's folder, not an absolute path")
+    parts = re.split(r"[/\\]", text)
+    if ".." in parts:
+        raise ValueError("a pattern may not climb out of the study file's folder ('..')")
+    if any("**" in part for part in parts):
+        raise ValueError("a pattern may not search folders recursively ('**'); name the folder")
+    return text
+
+
+LoadName = Annotated[str, Field(strict=True), AfterValidator(_load_name),
+                     WithJsonSchema({"type": "string", "pattern": LOAD_NAME_JSON_PATTERN,
+                                     "description": "the load's name (letters, digits, _ . -)"})]
+Weight = Annotated[float, Field(gt=0, le=1e6, allow_inf_nan=False,
+                                description="the load's weight in the share objective (more than 0)")]
+FilePattern = Annotated[str, Field(strict=True, max_length=4096), AfterValidator(_file_pattern),
+                        WithJsonSchema({"type": "string", "description": "Touchstone files matching this pattern "
+                                        "(* ? [..]), relative to the study file's folder and inside it; each "
+                                        "file is a load named by its file name"})]
+ENTRY_KINDS = (*LOAD_KINDS, "files")
+
+
+class LoadEntryModel(_Model):
+    """One entry of ``loads``: a named load (one of the four kinds, as ``load`` takes them) or a
+    file pattern (``files``, every matching Touchstone file a load named by its file name); an
+    optional ``weight`` (> 0) counts in the share objective."""
+
+    model_config = ConfigDict(json_schema_extra={"oneOf": [
+        {"required": ["files"], "not": {"required": ["name"]}},
+        {"required": ["name"], "not": {"required": ["files"]}}]})
+
+    name: LoadName | None = None
+    weight: Weight = 1.0
+    impedance: Annotated[ComplexOhms, AfterValidator(_nonnegative_real)] | None = None
+    series_rlc: RLCModel | None = None
+    parallel_rlc: RLCModel | None = None
+    touchstone: Annotated[str, Field(strict=True, max_length=4096), AfterValidator(_touchstone_name)] | None = None
+    files: FilePattern | None = None
+
+    @model_validator(mode="before")
+    @classmethod
+    def _one_kind(cls, data: Any) -> Any:
+        if isinstance(data, dict):
+            known = [k for k in data if k in ENTRY_KINDS]
+            if len(known) > 1:
+                raise ValueError(f"give exactly one of {', '.join(ENTRY_KINDS)}, found {', '.join(known)}")
+        return data
+
+    @model_validator(mode="after")
+    def _some_kind(self) -> LoadEntryModel:
+        if all(getattr(self, k) is None for k in ENTRY_KINDS):
+            raise ValueError(f"give one of {', '.join(ENTRY_KINDS)}")
+        if self.files is not None and self.name is not None:
+            raise ValueError("files: each matching file is named by its file name; drop name")
+        if self.files is None and self.name is None:
+            raise ValueError("name: required key is missing (every load needs a name)")
+        return self
+
+    @property
+    def kind(self) -> str:
+        return next(k for k in ENTRY_KINDS if getattr(self, k) is not None)
+
+    def as_load(self) -> LoadModel:
+        """The entry's load as ``load:`` would take it (not for ``files``)."""
+        return LoadModel.model_construct(**{k: getattr(self, k) for k in LOAD_KINDS})
+
+
 class SegmentModel(_Model):
     """One mask segment: ``from``..``to`` (Hz) needs ``return_loss`` (dB) or ``vswr`` (exactly one);
     ``max_loss`` (dB) is optional."""
@@ -674,6 +771,18 @@ class SearchModel(_Model):
     population: Annotated[int, Field(strict=True, ge=2, json_schema_extra={"maximum": limits.MAX_POPULATION})] = 64
     generations: Annotated[int, Field(strict=True, ge=1, le=limits.MAX_GENERATIONS)] = 60
     objective: Literal["margin", "yield", "pareto"] = "margin"
+    loads: Annotated[Literal["worst", "share"], Field(
+        description="with several loads: rank by the worst margin over every load (worst), or by the "
+                    "weighted share of loads that meet the mask, ties broken by the worst margin (share)")] = "worst"
+
+    @model_validator(mode="after")
+    def _share_with_margin(self) -> SearchModel:
+        if self.loads == "share" and self.objective != "margin":
+            raise ValueError(f"loads: share ranks by the share of loads that meet the mask, which applies to "
+                             f"objective: margin; objective: {self.objective} "
+                             + ("counts every build on every load already" if self.objective == "yield"
+                                else "trades the worst margin against length"))
+        return self
 
 
 NAME_PATTERN = r"^[A-Za-z0-9_.-]+$"
@@ -714,10 +823,13 @@ Alternatives = Annotated[
 
 
 class StudyModel(_Model):
-    """A whole study file: one ``network``, or several named ``alternatives`` (exactly one of the two)."""
+    """A whole study file: exactly one of ``load`` (one load) and ``loads`` (several), and exactly one of
+    ``network`` (one network) and ``alternatives`` (several named networks)."""
 
     model_config = ConfigDict(title="optmatch study file",
-                              json_schema_extra={"oneOf": [{"required": ["network"]}, {"required": ["alternatives"]}]})
+                              json_schema_extra={"allOf": [
+                                  {"oneOf": [{"required": ["load"]}, {"required": ["loads"]}]},
+                                  {"oneOf": [{"required": ["network"]}, {"required": ["alternatives"]}]}]})
 
     name: Annotated[str, Field(strict=True), AfterValidator(_study_name),
                     WithJsonSchema({"type": "string", "pattern": NAME_JSON_PATTERN,
@@ -725,7 +837,8 @@ class StudyModel(_Model):
     description: Annotated[str, Field(strict=True, max_length=limits.MAX_DESCRIPTION)] = ""
     system: Ohms = 50.0
     reference: Frequency | None = None
-    load: LoadModel
+    load: LoadModel | None = None
+    loads: Annotated[list[LoadEntryModel], Field(min_length=1, max_length=limits.MAX_LOADS)] | None = None
     mask: MaskModel
     network: NetworkModel | None = None
     alternatives: Alternatives | None = None
@@ -734,9 +847,20 @@ class StudyModel(_Model):
     drive: DriveModel | None = None
     tolerance: ToleranceModel = Field(default_factory=ToleranceModel)
 
+    def load_key_problem(self) -> tuple[str, str] | None:
+        """(key, problem) when the file gives both ``load`` and ``loads``, or neither (checked by the
+        loader, so that the rest of the file is still checked)."""
+        if self.load is not None and self.loads is not None:
+            return "loads", "give either load (one load) or loads (several), not both"
+        if self.load is None and self.loads is None:
+            return "load", "required key is missing (or give loads: for several loads)"
+        return None
 
-SECTION_MODELS: dict[str, type[BaseModel]] = {
-    "load": LoadModel, "mask": MaskModel, "network": NetworkModel, "search": SearchModel,
+
+SECTION_MODELS: dict[str, Any] = {
+    "load": LoadModel,
+    "loads": TypeAdapter(Annotated[list[LoadEntryModel], Field(min_length=1, max_length=limits.MAX_LOADS)]),
+    "mask": MaskModel, "network": NetworkModel, "search": SearchModel,
     "shelf": ShelfModel, "drive": DriveModel, "tolerance": ToleranceModel,
 }
 
