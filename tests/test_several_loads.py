@@ -120,6 +120,16 @@ def test_two_loads_a_design_passes_both_and_per_load_margins_agree(tmp_path):
     csv_head = (folder / "designs.csv").read_text().splitlines()[0]
     assert "margin_db_a" in csv_head and "margin_db_b" in csv_head
     assert {"matched_input_a.s1p", "matched_input_b.s1p"} <= set(back.files)
+    # the batch report and the study pages carry the per-load view
+    from optmatch.outputs.report import write_report
+
+    write_report(tmp_path / "results")
+    report = (tmp_path / "results" / "report.md").read_text()
+    worst = next(lm for lm in best.load_margins if lm.load == best.worst_load)
+    assert f"2 of 2 ({best.worst_load} {worst.margin_db:+.2f} dB)" in report
+    page = (folder / "study.md").read_text()
+    assert "## Each load" in page and "| rank | verdict | a (dB) | b (dB) | loads met |" in page
+    assert "Each load" in (folder / "study.html").read_text()
 
 
 # ------------------------------------------------------------------ worst against share

@@ -7,6 +7,7 @@ import sys
 from pathlib import Path
 
 from rich.progress import TaskID
+from rich.text import Text
 
 from optmatch.cli.terminal import console, progress, table
 from optmatch.outputs.document import passes
@@ -145,14 +146,25 @@ def run_batch_command(args: argparse.Namespace) -> int:
 
 
 def _closing_table(entries: list, out: Path) -> None:
-    tab = table("study", "status", "mask", "best margin dB", "trials", "time s", title="batch")
+    from optmatch.outputs.document import ResultsFileError, read_summary
+    from optmatch.outputs.report import loads_met_text
+
+    tab = table("study", "status", "mask", "best margin dB", "loads met (worst)", "trials", "time s", title="batch")
     for e in entries:
         margin = f"{e.best_margin_db:+.2f}" if e.best_margin_db is not None else "–"
         trials = f"{e.trials_complete}/{e.trials_budget}" if e.trials_budget else "–"
-        tab.add_row(e.name, e.status, e.verdict or "–", margin, trials, f"{e.elapsed_s:.0f}" if e.elapsed_s else "–")
+        loads = "–"
+        summary = out / e.name / "summary.json"
+        if e.status == "done" and summary.is_file():
+            try:
+                loads = loads_met_text(read_summary(summary))
+            except ResultsFileError:
+                pass
+        tab.add_row(Text(e.name), e.status, e.verdict or "–", margin, Text(loads), trials,
+                    f"{e.elapsed_s:.0f}" if e.elapsed_s else "–")
     out_console = console()
     out_console.print(tab)
-    out_console.print(f"report: {out / 'report.html'}")
+    out_console.print(Text(f"report: {out / 'report.html'}"))
 
 
 def run_worker_command(args: argparse.Namespace) -> int:

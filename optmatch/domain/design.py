@@ -125,6 +125,20 @@ def performances(problem: Problem, design: Design) -> list[Performance]:
     return [performance(problem, design, k) for k in range(problem.n_loads)]
 
 
+def worst_and_each(problem: Problem, design: Design) -> tuple[Performance, list[Performance]]:
+    """The design's performance on its worst load (the one with the lowest margin) and on every load
+    (empty with one load, whose performance is then the first value)."""
+    if not problem.several:
+        return performance(problem, design), []
+    each = performances(problem, design)
+    return min(each, key=lambda pf: pf.margin_db), each
+
+
+def worst_bare_load(problem: Problem) -> Performance:
+    """The bare load with the lowest margin against the mask (the only one with one load)."""
+    return min((bare_load(problem, k) for k in range(problem.n_loads)), key=lambda pf: pf.margin_db)
+
+
 def bare_load(problem: Problem, load: int | str | None = None) -> Performance:
     """The load alone, with no network, against the system impedance (no network loss)."""
     zl = np.asarray(problem.zloads[problem.load_index(load)], dtype=complex)

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 import posixpath
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 from urllib.parse import quote, unquote
@@ -18,7 +19,7 @@ from urllib.parse import quote, unquote
 import flask
 from dash import ALL, Dash, Input, Output, State, ctx, dcc, html, no_update
 
-from optmatch.domain.design import bare_load, performance
+from optmatch.domain.design import worst_and_each, worst_bare_load
 from optmatch.errors import OptmatchError
 from optmatch.explorer import sortable, tuning
 from optmatch.explorer.data import DASH, Results, all_designs, best_yield, ceiling_db
@@ -28,8 +29,13 @@ from optmatch.explorer.sortable import Column
 from optmatch.outputs.document import SummaryDoc
 from optmatch.outputs.tables import (
     ALTERNATIVE_HEAD,
+    LOADS_HEAD,
     alternative_cells,
     elements_text,
+    load_margin_cells,
+    load_margin_head,
+    loads_rows,
+    loads_sentence,
     mask_text,
     num,
     yield_text,
@@ -56,12 +62,15 @@ def overview_rows(results: Results) -> list[dict]:
         y = best_yield(s)
         ceiling = ceiling_db(s)
         n_alt = len(s.alternatives) if s is not None and s.alternatives else None
+        several = s is not None and s.several_loads and best is not None
+        met = best.loads_met if several and best is not None else None
         rows.append(sortable.row(
             {"study": e.name, "status": e.status if not e.message else f"{e.status}: {e.message}",
              "verdict": s.verdict if s is not None else DASH, "margin": num(margin, "+.2f", "+∞"), "yield": _pct(y),
              "ceiling": num(ceiling, ".2f"), "designs": str(len(s.designs)) if s is not None else DASH,
-             "alternatives": str(n_alt) if n_alt else DASH},
-            order={"margin": margin if margin is None or math.isfinite(margin) else 1e9, "yield": y,
+             "alternatives": str(n_alt) if n_alt else DASH,
+             "loads": f"{met} of {len(s.loads)}" if s is not None and met is not None else DASH},
+            order={"loads": met, "margin": margin if margin is None or math.isfinite(margin) else 1e9, "yield": y,
                    "ceiling": ceiling, "designs": len(s.designs) if s is not None else None, "alternatives": n_alt},
             href=f"/study/{quote(e.name, safe='')}" if s is not None else None))
     return rows
@@ -70,7 +79,7 @@ def overview_rows(results: Results) -> list[dict]:
 OVERVIEW_COLUMNS = [Column("study", "study"), Column("status", "status"), Column("verdict", "verdict"),
                     Column("margin", "best margin (dB)", True), Column("yield", "best yield", True),
                     Column("ceiling", "ceiling (dB)", True), Column("designs", "designs", True),
-                    Column("alternatives", "alternatives", True)]
+                    Column("alternatives", "alternatives", True), Column("loads", "loads met (best)", True)]
 
 
 def overview(results: Results) -> html.Div:
@@ -102,6 +111,32 @@ DESIGN_COLUMNS = [Column("design", "design"), Column("verdict", "verdict"), Colu
                   Column("length", "length (λ)", True), Column("yield", "yield", True),
                   Column("elements", "elements, load outwards (electrical length, Z0)")]
 ALTERNATIVE_COLUMNS = [Column(str(k), h, k >= 4 or k == 2) for k, h in enumerate(ALTERNATIVE_HEAD)]
+
+
+def _numbers(cells: Sequence[str]) -> dict[str, float]:
+    """Sort values of the cells that read as numbers (``+1.23``, ``12.5``), keyed by column."""
+    out = {}
+    for k, c in enumerate(cells):
+        try:
+            out[str(k)] = float(c.replace("+∞", "inf"))
+        except ValueError:
+            continue
+    return out
+
+
+def _loads_parts(s: SummaryDoc) -> list:
+    """With several loads: the loads alone and each ranked design's margin on each load."""
+    if not s.several_loads:
+        return []
+    alone, left = loads_rows(s)
+    head = load_margin_head(s)
+    per = [sortable.row({str(k): c for k, c in enumerate(cells)}, order=_numbers(cells))
+           for cells in (load_margin_cells(d, s) for d in s.designs)]
+    return [html.H2("Each load"), html.P(loads_sentence(s) + (f" (the {len(alone)} worst alone shown; {left} more "
+                                                             "in summary.json)" if left else ""), className="sub"),
+            sortable.sortable("loads-alone", [Column(str(k), h, k >= 3 or k == 1) for k, h in enumerate(LOADS_HEAD)],
+                              [sortable.row({str(k): c for k, c in enumerate(r)}, order=_numbers(r)) for r in alone]),
+            sortable.sortable("loads-margins", [Column(str(k), h, k >= 2) for k, h in enumerate(head)], per)]
 
 
 def _overlay_options(s: SummaryDoc) -> list[dict]:
@@ -138,6 +173,7 @@ def study_page(results: Results, name: str) -> html.Div:
         html.P("Click a row or a point of the scatter to select a design; tick designs to overlay them.",
                className="sub"),
         sortable.sortable("designs", DESIGN_COLUMNS, _design_rows(s)),
+        *_loads_parts(s),
         html.Div([html.Span("Overlay: ", className="label"),
                   dcc.Checklist(id="overlay", options=_overlay_options(s), inline=True,
                                 value=[k for k, _, _ in all_designs(s)[:OVERLAID_AT_START]])], className="overlay"),
@@ -289,14 +325,14 @@ def create_app(root: Path, allowed_hosts: set[str] | None = None) -> Dash:
             empty = return_loss_figure(opened.entry.summary.mask if opened and opened.entry.summary else (), [])
             return empty, smith_figure([], 50.0), DASH, DASH, DASH, DASH
         s = opened.entry.summary
-        alone = bare_load(opened.study.problem)
+        alone = worst_bare_load(opened.study.problem)
         curves = [Curve("load alone", alone.freq, alone.gamma, "#777777", "dash", 1.2)]
         for k, ov in enumerate(overlay or []):
             got = results.design(opened, ov)
             if got is None or ov == key:
                 continue
             sub, design, _ = got
-            perf = performance(sub.problem, design)
+            perf, _ = worst_and_each(sub.problem, design)
             curves.append(Curve(ov, perf.freq, perf.gamma, PALETTE[k % len(PALETTE)], "solid", 1.3))
         readout = (DASH, DASH, DASH, DASH)
         got = results.design(opened, key) if key else None
@@ -307,7 +343,13 @@ def create_app(root: Path, allowed_hosts: set[str] | None = None) -> Dash:
             perf = tuned.performance
             changed = any(abs(a - b) > 1e-12 for a, b in zip(tuned.design.u, design.u, strict=True))
             label = f"{key} tuned" if changed else key
-            curves.append(Curve(label, perf.freq, perf.gamma, TUNED, "solid", 2.4))
+            names = sub.problem.names if tuned.each else ()
+            for name, pf in zip(names, tuned.each, strict=True):  # several loads: each one's curve, thin
+                if pf is not perf:
+                    curves.append(Curve(f"{label} on {name}", pf.freq, pf.gamma, TUNED, "dot", 1.2))
+            worst = next((n for n, pf in zip(names, tuned.each, strict=True) if pf is perf), "")
+            on = f" on {worst}, the worst" if worst else ""
+            curves.append(Curve(label + on, perf.freq, perf.gamma, TUNED, "solid", 2.4))
             worst_mhz = perf.freq[perf.worst_index] / 1e6
             readout = (f"{perf.margin_db:+.2f} dB", f"{perf.worst_rl_db:.2f} dB at {worst_mhz:.3f} MHz",
                        _pct(tuned.robustness.yield_frac) + f" of {tuned.robustness.samples} builds",

@@ -13,7 +13,7 @@ import threading
 from dataclasses import replace
 from pathlib import Path
 
-from optmatch.domain.design import Design, performance
+from optmatch.domain.design import Design, worst_and_each
 from optmatch.errors import OptmatchError
 from optmatch.io.atomic import write_json_atomic
 from optmatch.io.paths import child_path
@@ -58,10 +58,12 @@ def keep_variant(folder: Path, study: Study, design: Design, based_on: int, alte
         number = 1 + max((int(v.name.split("-")[1]) for v in kept), default=0)
         name = f"variant-{number}"
         where = child_path(child_path(folder, VARIANTS_DIR), name)
+        per_load = {n: f"matched_input_{n}.s1p" for n in study.problem.names} if study.problem.several else None
         exported = export_touchstone(study.problem, design, where, invented=doc.invented,
-                                     which=f"{name}, tuned from design rank {based_on}")
+                                     which=f"{name}, tuned from design rank {based_on}", per_load=per_load)
         files = tuple(f"{VARIANTS_DIR}/{name}/{p.name}" for p in exported)
-        record = design_doc(study, design, performance(study.problem, design), based_on, power_check(study, design),
+        worst, each = worst_and_each(study.problem, design)
+        record = design_doc(study, design, worst, based_on, power_check(study, design), each=each,
                             alternative=alternative)
         variant = VariantDoc(name=name, based_on=based_on, design=record, files=files)
         every = (*kept, variant)

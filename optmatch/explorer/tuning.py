@@ -16,7 +16,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from optmatch.domain.design import Design, Performance, performance
+from optmatch.domain.design import Design, Performance, worst_and_each
 from optmatch.domain.microstrip import velocity_factor
 from optmatch.domain.network import ElementSpec, Medium
 from optmatch.domain.problem import Problem
@@ -129,16 +129,20 @@ def tuned(problem: Problem, design: Design, values: Mapping[str, float]) -> Desi
 
 @dataclass(frozen=True)
 class Tuned:
-    """A tuned design with its band figures (one engine evaluation) and its yield (Monte Carlo builds)."""
+    """A tuned design with its band figures (one engine evaluation per load) and its yield (Monte Carlo
+    builds).  ``performance``: on the worst load (the only one with one load); ``each``: on every load
+    of a study with several (empty otherwise)."""
 
     design: Design
     performance: Performance
     robustness: Robustness
+    each: tuple[Performance, ...] = ()
 
 
 def evaluate(problem: Problem, design: Design, spread: Spread) -> Tuned:
     """The figures shown while tuning: the curve and margin, and the yield under the study's spreads."""
-    return Tuned(design, performance(problem, design), monte_carlo(problem, design, spread))
+    worst, each = worst_and_each(problem, design)
+    return Tuned(design, worst, monte_carlo(problem, design, spread), tuple(each))
 
 
 __all__ = ["Control", "Tuned", "controls", "evaluate", "part_label", "tuned"]

@@ -35,12 +35,19 @@ from optmatch.outputs.tables import (
     BUILD_HEAD,
     DESIGN_HEAD,
     LOAD_HEAD,
+    LOADS_ALIGN,
+    LOADS_HEAD,
     alternative_cells,
     alternatives_markdown,
     build_cells,
     design_cells,
     load_cells,
+    load_margin_align,
+    load_margin_cells,
+    load_margin_head,
     load_sentence,
+    loads_rows,
+    loads_sentence,
     mask_text,
     mhz,
     num,
@@ -203,6 +210,7 @@ def _cells(row: Row) -> dict[str, str]:
         "status": row.status,
         "verdict": _verdict(row) or DASH,
         "margin": num(s.best.margin_db, "+.2f", "+∞") if s and s.best else DASH,
+        "loads": loads_met_text(s),
         "length": _length_text(s),
         "cut": str(len(build.pieces)) if build is not None else DASH,
         "trials": str(s.search.trials_complete) if s else DASH,
@@ -211,7 +219,7 @@ def _cells(row: Row) -> dict[str, str]:
 
 
 COLUMNS = (("study", "Study", False), ("status", "Status", False), ("verdict", "Verdict", False),
-           ("margin", "Best margin (dB)", True), ("length", "Total length", True),
+           ("margin", "Best margin (dB)", True), ("loads", "Loads met (worst)", True), ("length", "Total length", True),
            ("cut", "Cut-list pieces", True), ("trials", "Trials", True), ("time", "Time (s)", True))
 
 
@@ -267,7 +275,8 @@ def batch_html(rows: list[Row], generated: str) -> str:
         if r.summary is not None and r.summary.verdict != PASS:
             first += f'<div class="msg">{_e(r.summary.verdict_line)}</div>'
         verdict = _chip(c["verdict"]) if c["verdict"] != DASH else DASH
-        cells = [first, _chip(c["status"]), verdict] + [_e(c[k]) for k in ("margin", "length", "cut", "trials", "time")]
+        cells = [first, _chip(c["status"]), verdict] + [_e(c[k]) for k in ("margin", "loads", "length", "cut", "trials",
+                                                                            "time")]
         tds = "".join(f'<td class="{"num" if num_col else ""}">{cell}</td>'
                       for cell, (_, _, num_col) in zip(cells, COLUMNS, strict=True))
         body_rows.append(f'<tr class="study" data-study="{_e(r.name)}">{tds}</tr>')
@@ -359,11 +368,45 @@ def study_html(row: Row, folder: Path) -> str:
             f'<h2>Plots</h2>\n<div class="plots">{figs or "<p>No plots.</p>"}</div>\n'
             + alternatives
             + f"<h2>Ranked designs</h2>\n{_html_table(DESIGN_HEAD, [design_cells(d) for d in s.designs], 'rlrrrrrl')}\n"
-            f"<h2>Build sheet of the best design</h2>\n{build}\n{ratings}\n"
+            + _loads_html(s)
+            + f"<h2>Build sheet of the best design</h2>\n{build}\n{ratings}\n"
             f"<h2>Before you build</h2>\n{_cautions_html()}\n"
             f'<footer>Markdown twin: <a href="{STUDY_MD}">{STUDY_MD}</a> · data: '
             f'<a href="summary.json">summary.json</a></footer>')
     return _page(f"{row.name} · optmatch", body)
+
+
+def loads_met_text(s: SummaryDoc | None) -> str:
+    """The best design's loads met and its worst load, for a study with several loads (else a dash)."""
+    if s is None or not s.several_loads or s.best is None:
+        return DASH
+    best = s.best
+    worst = next((lm for lm in best.load_margins if lm.load == best.worst_load), None)
+    tail = f" ({best.worst_load} {num(worst.margin_db, '+.2f', '+∞')} dB)" if worst is not None else ""
+    return f"{best.loads_met} of {len(s.loads)}{tail}"
+
+
+def _loads_html(s: SummaryDoc) -> str:
+    """With several loads: the loads alone and each ranked design's margin on each load."""
+    if not s.several_loads:
+        return ""
+    alone, left = loads_rows(s)
+    more = f" (the {len(alone)} worst alone; {left} more in summary.json)" if left else ""
+    return (f"<h2>Each load</h2>\n<p>{_e(loads_sentence(s) + more)}</p>\n"
+            + _html_table(LOADS_HEAD, alone, LOADS_ALIGN) + "\n"
+            + _html_table(load_margin_head(s), [load_margin_cells(d, s) for d in s.designs], load_margin_align(s))
+            + "\n")
+
+
+def _loads_markdown(s: SummaryDoc) -> list[str]:
+    if not s.several_loads:
+        return []
+    alone, left = loads_rows(s)
+    more = f" (the {len(alone)} worst alone; {left} more in summary.json)" if left else ""
+    return ["## Each load", "", md(loads_sentence(s) + more), "",
+            *table(LOADS_HEAD, [[md(c) for c in r] for r in alone], LOADS_ALIGN), "",
+            *table(load_margin_head(s), [[md(c) for c in load_margin_cells(d, s)] for d in s.designs],
+                   load_margin_align(s)), ""]
 
 
 # ---------------------------------------------------------------- markdown
@@ -379,8 +422,8 @@ def batch_markdown(rows: list[Row], generated: str) -> str:
             name += f" ({md(r.message)})"
         if r.summary is not None and r.summary.verdict != PASS:
             name += f" ({md(r.summary.verdict_line)})"
-        table_rows.append([name, md(c["status"]), md(c["verdict"]), c["margin"], c["length"], c["cut"], c["trials"],
-                           c["time"]])
+        table_rows.append([name, md(c["status"]), md(c["verdict"]), c["margin"], md(c["loads"]), c["length"], c["cut"],
+                           c["trials"], c["time"]])
     counts = ", ".join(f"{n} {t}" for n, t in tally(rows)[1:])
     lines = ["# Batch report", "", f"optmatch · {len(rows)} studies ({counts}) · written {md(generated)}.", "",
              *table([label for _, label, _ in COLUMNS], table_rows, "lll" + "r" * 5), ""]
@@ -416,6 +459,7 @@ def study_markdown(row: Row, folder: Path) -> str:
     lines += alternatives_markdown(s)
     lines += ["## Ranked designs", "", *table(DESIGN_HEAD, [[md(c) for c in design_cells(d)] for d in s.designs],
                                              "llrrrrrl"), ""]
+    lines += _loads_markdown(s)
     lines += ["## Build sheet of the best design", ""]
     if s.build is not None and s.build.pieces:
         lines += [md_block(s.build.allowances), "",
