@@ -390,11 +390,13 @@ shelf:
 network:
   elements:
     - line: {{length: {{min: 0deg, max: 180deg}}, cable: semi-rigid-141{cut}}}
-    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, cable: semi-rigid-141{cut}, allowances: [sma_tee_arm]}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, cable: semi-rigid-141{cut},
+                   allowances: [sma_tee_arm]}}
     - line: {{length: 45deg, cable: semi-rigid-141{cut}}}
     - shunt_stub: {{{stock_stub}, end: either, cable: semi-rigid-141, allowances: [sma_tee_arm]}}
     - line: {{length: 45deg, cable: semi-rigid-141{cut}}}
-    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, cable: semi-rigid-141{cut}, allowances: [sma_tee_arm]}}
+    - shunt_stub: {{length: {{min: 5deg, max: 180deg}}, end: either, cable: semi-rigid-141{cut},
+                   allowances: [sma_tee_arm]}}
 search: {{trials: {trials}, seed: 4, population: 48, generations: 50}}
 """
 

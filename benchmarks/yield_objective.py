@@ -67,7 +67,8 @@ def _limiting(study, design, rob) -> str:
     if worst is None:
         return "-"
     el = study.problem.network.elements[worst.index]
-    return f"element {worst.index + 1} ({el.kind}): {worst.db_per_mm:+.2f} dB/mm, ±{abs(worst.db_per_mm) * cut_mm:.2f} dB"
+    return (f"element {worst.index + 1} ({el.kind}): {worst.db_per_mm:+.2f} dB/mm, "
+            f"±{abs(worst.db_per_mm) * cut_mm:.2f} dB")
 
 
 def run_pair(name: str, raw: dict, workdir: Path) -> dict:

@@ -262,8 +262,12 @@ def run(target: Study | Mapping | str | os.PathLike, out: str | os.PathLike | No
     from optmatch.running.pipeline import run_study
 
     st = target if isinstance(target, Study) else study(target, **kwargs)
-    tmp = tempfile.TemporaryDirectory(prefix="optmatch-") if out is None else None
-    root = Path(tmp.name) if tmp is not None else Path(out)  # type: ignore[arg-type]
+    tmp: tempfile.TemporaryDirectory[str] | None = None
+    if out is None:
+        tmp = tempfile.TemporaryDirectory(prefix="optmatch-")
+        root = Path(tmp.name)
+    else:
+        root = Path(out)
     folder, doc = run_study(st, root, storage, progress_fn=progress)
     return Result(study=st, folder=folder, summary=doc, _tmp=tmp)
 

@@ -159,8 +159,8 @@ def _a(noun: str) -> str:
 
 
 _EXAMPLES = {"frequency": "146MHz", "inductance": "15nH", "capacitance": "2.2pF", "power": "100W",
-             "duration": "90s, 5min or 1h", "length": "45deg, 0.125wl, 120mm or 2.5ns", "percentage": "2%", "impedance": "50", "resistance": "47",
-             "return loss": "15", "loss": "0.5", "level": "3"}
+             "duration": "90s, 5min or 1h", "length": "45deg, 0.125wl, 120mm or 2.5ns", "percentage": "2%",
+             "impedance": "50", "resistance": "47", "return loss": "15", "loss": "0.5", "level": "3"}
 
 
 def _bare_hint(number: str, kind: QuantityKind) -> str:

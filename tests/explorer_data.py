@@ -46,7 +46,8 @@ def _made() -> Path:
     atexit.register(shutil.rmtree, work, True)
     studies = work / "studies"
     studies.mkdir()
-    for source, name in ((CONFIGS / "demo_whip.yaml", "whip-small"), (CONFIGS / "topology_compare.yaml", "compare-small")):
+    for source, name in ((CONFIGS / "demo_whip.yaml", "whip-small"),
+                         (CONFIGS / "topology_compare.yaml", "compare-small")):
         run_study(load_study(_small(source, name, studies)), work / "results")
     return work
 

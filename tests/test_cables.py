@@ -99,8 +99,8 @@ def test_user_catalog_extends_and_replaces(tmp_path):
 
 def test_bad_catalog_is_one_line_per_problem(tmp_path):
     p = tmp_path / "bad.yaml"
-    p.write_text("cables:\n  x: {z0: 50, vf: 1.4, attenuation: 3, max_voltage: 100, max_power: {watts: 1, freq: 1GHz}}\n",
-                 encoding="utf-8")
+    p.write_text("cables:\n  x: {z0: 50, vf: 1.4, attenuation: 3, max_voltage: 100, "
+                 "max_power: {watts: 1, freq: 1GHz}}\n", encoding="utf-8")
     with pytest.raises(CatalogError) as info:
         read_catalog(p)
     probs = info.value.problems

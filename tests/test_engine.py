@@ -82,7 +82,8 @@ ZLOAD = 30.0 - 45.0j
 def test_line_matches_skrf(z_sys):
     stages, params = [LINE], [{"z0": 93.0, "delay": 1.7e-9}]
     np.testing.assert_allclose(  # scikit-rf as an independent reference
-        engine_gamma(stages, params, FREQ, ZLOAD, z_sys), skrf_gamma(stages, params, FREQ, ZLOAD, z_sys), rtol=0, atol=1e-9
+        engine_gamma(stages, params, FREQ, ZLOAD, z_sys), skrf_gamma(stages, params, FREQ, ZLOAD, z_sys),
+        rtol=0, atol=1e-9
     )
 
 
@@ -161,7 +162,8 @@ def test_random_cascades_match_skrf():
         zl = _random_load(rng, FREQ)
         z_sys = float(rng.choice([50.0, 75.0]))
         np.testing.assert_allclose(  # scikit-rf's ** cascade as an independent reference
-            engine_gamma(stages, params, FREQ, zl, z_sys), skrf_gamma(stages, params, FREQ, zl, z_sys), rtol=0, atol=1e-9
+            engine_gamma(stages, params, FREQ, zl, z_sys), skrf_gamma(stages, params, FREQ, zl, z_sys),
+            rtol=0, atol=1e-9
         )
 
 
@@ -256,7 +258,8 @@ def test_chunk_size_does_not_change_results():
         # SIMD and strided loops may round a complex product differently)
         np.testing.assert_allclose(res.gamma, ref.gamma, rtol=0, atol=1e-14)
         np.testing.assert_allclose(res.delivered, ref.delivered, rtol=0, atol=1e-14)
-        np.testing.assert_allclose(worst_gamma_sq(stages, params, FREQ, ZLOAD, chunk=chunk), worst_ref, rtol=0, atol=1e-14)
+        np.testing.assert_allclose(worst_gamma_sq(stages, params, FREQ, ZLOAD, chunk=chunk), worst_ref,
+                                   rtol=0, atol=1e-14)
     red = evaluate_reduced(stages, params, FREQ, ZLOAD, reducer=lambda r: r.return_loss_db.min(axis=1), chunk=33)
     np.testing.assert_allclose(red, -10 * np.log10(worst_ref), rtol=1e-13)  # identity: RL = −10·log10 max|Γ|²
 
@@ -331,7 +334,8 @@ def test_series_inductor_on_resistor_by_identity():
 @pytest.mark.parametrize("z_s", [50.0, 75.0, 300.0])
 def test_matched_source_delivers_available_power(z_s):
     res = evaluate([LINE], [{"z0": z_s, "delay": 2.2e-9}], FREQ, z_s, z_sys=z_s)
-    np.testing.assert_allclose(res.delivered, 1.0, rtol=0, atol=1e-12)  # all available power (common practice, no source)
+    # all available power (common practice, no source)
+    np.testing.assert_allclose(res.delivered, 1.0, rtol=0, atol=1e-12)
     v_over_emf = res.zin / (res.zin + z_s)
     # input voltage is half the EMF, −6.02 dB (common practice, no source)
     np.testing.assert_allclose(20 * np.log10(np.abs(v_over_emf)), 20 * np.log10(0.5), atol=1e-9)

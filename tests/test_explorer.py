@@ -116,6 +116,17 @@ def test_keep_variant_is_listed_and_never_touches_the_search_results(root: Path)
     assert VARIANTS_JSON in again.files
 
 
+def test_keep_variant_of_an_alternative_records_which_network_it_is(root: Path) -> None:
+    folder = root / "compare-small"
+    doc, sub, design = _design(folder, 1)
+    name = doc.designs[0].alternative
+    assert name  # a study with alternatives names the network of each design
+    variant = keep_variant(folder, sub, design, 1, name)
+    assert variant.design.alternative == name
+    kept = read_summary(folder / "summary.json").variants[0].design
+    assert kept.alternative == name and kept.margin_db == pytest.approx(doc.designs[0].margin_db, abs=1e-9)
+
+
 TRAVERSALS = [
     "/files/whip-small/..%2f..%2fsecret.txt",
     "/files/whip-small/%2e%2e/%2e%2e/secret.txt",

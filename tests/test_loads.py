@@ -58,7 +58,8 @@ def test_parallel_rlc_hand_formula_and_resonance():
     # hand formula Z = R / (1 + jR(ωC − 1/ωL))
     np.testing.assert_allclose(z, r / (1 + 1j * r * (w * cap - 1 / (w * ind))), rtol=1e-12)
     f0 = 1 / (2 * np.pi * np.sqrt(ind * cap))
-    assert parallel_rlc(np.array([f0]), r, ind, cap)[0] == pytest.approx(r, rel=1e-9)  # identity: parallel resonance gives R
+    # identity: parallel resonance gives R
+    assert parallel_rlc(np.array([f0]), r, ind, cap)[0] == pytest.approx(r, rel=1e-9)
     # R ∥ C alone: Z = R / (1 + jωRC) (hand formula)
     np.testing.assert_allclose(parallel_rlc(FREQ, r_ohm=r, c_f=cap), r / (1 + 1j * w * r * cap), rtol=1e-12)
 

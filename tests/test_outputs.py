@@ -337,7 +337,8 @@ def test_summary_markdown_verdict_and_tables():
     text = summary_markdown(summary_document(_study(problem), _outcome([best, second])))
     # Pozar 4th ed., Example 5.2 (recalled from memory): the shorter solution is the broader one and
     # meets 15 dB over ±2 % (common practice, no source); the verdict follows the engine's margin
-    assert best.margin_db > 0 and f"**Verdict:** PASS: the best design meets the mask by {best.margin_db:+.2f} dB" in text
+    assert best.margin_db > 0
+    assert f"**Verdict:** PASS: the best design meets the mask by {best.margin_db:+.2f} dB" in text
     ranked = text.split("## Ranked designs")[1].split("##")[0]
     rows = [ln for ln in ranked.splitlines() if ln.startswith("| ") and ln.split("|")[1].strip().isdigit()]
     assert len(rows) == 2  # one row per design, each naming Z0 so that designs read apart

@@ -369,7 +369,8 @@ GOOD_LOAD = "load: {impedance: 60-j80}\n"
         (GOOD_NET + MASK + "load: {impedance: 50, series_rlc: {r: 20}}\n", "load: give exactly one of"),
         (GOOD_NET + MASK + "load: {impedance: 50x}\n", "load.impedance: '50x' is not a complex number"),
         (GOOD_NET + MASK + "load: {series_rlc: {}}\n", "load.series_rlc: give at least one of r, l, c"),
-        (GOOD_NET + MASK + "load: {series_rlc: {l: 15pF}}\n", "load.series_rlc.l: '15pF' is a capacitance, not an inductance"),
+        (GOOD_NET + MASK + "load: {series_rlc: {l: 15pF}}\n",
+         "load.series_rlc.l: '15pF' is a capacitance, not an inductance"),
         (GOOD_NET + MASK + "load: {touchstone: nothere.s1p}\n", "load.touchstone: "),
         (GOOD_NET + MASK, "load: required key is missing"),
     ],
@@ -492,13 +493,15 @@ def test_elements_and_population_bounded_before_any_search(tmp_path):
     # 10^5 elements as the issue wrote them: refused by the file-size bound, one line, no MemoryError.
     many = "network:\n  elements:\n" + "    - line: {length: 1deg}\n" * 100_000
     path = write(tmp_path, GOOD_LOAD + MASK + many)
-    assert [bare(p, path) for p in problems_of(path)] == ["larger than 1024 KiB; a study file or catalog is far smaller"]
+    assert [bare(p, path) for p in problems_of(path)] == [
+        "larger than 1024 KiB; a study file or catalog is far smaller"]
     # 10^5 elements through aliases: refused by the alias-expansion bound.
     aliased = write(tmp_path, GOOD_LOAD + MASK + "e: &e {line: {length: 1deg}}\nnetwork:\n  elements: ["
                     + ", ".join(["*e"] * 100_000) + "]\n", "aliased.yaml")
     assert "aliases expand to more than 200,000 values" in problems_of(aliased)[0]
     # Past the cap of elements, one line.
-    cap = write(tmp_path, GOOD_LOAD + MASK + "network:\n  elements:\n" + "    - line: {length: 1deg}\n" * 65, "cap.yaml")
+    cap = write(tmp_path, GOOD_LOAD + MASK + "network:\n  elements:\n" + "    - line: {length: 1deg}\n" * 65,
+                "cap.yaml")
     assert [bare(p, cap) for p in problems_of(cap)] == ["network.elements: at most 64 entries (got 65)"]
     # The memory estimate refuses what the static caps let through: a large population on a fine grid.
     thirty = "network:\n  elements:\n" + "    - line: {length: {min: 0deg, max: 90deg}}\n" * 30
@@ -635,8 +638,10 @@ network:
     - line: {length: 10deg, cable: [foam-10mm, RG-174], allowances: [tee]}
 """)
     got = [bare(p, path) for p in problems_of(path)]
-    assert got[0] == "network.elements[0].line.length: 90 what? write e.g. 90deg or 90mm (units: deg, wl, rad, mm, cm, m, in, ns, ps)"
-    assert got[1].startswith("network.elements[1].shunt_stub.cable: unknown cable 'RG-59-clas'; did you mean 'RG-59-class'?")
+    assert got[0] == ("network.elements[0].line.length: 90 what? write e.g. 90deg or 90mm "
+                      "(units: deg, wl, rad, mm, cm, m, in, ns, ps)")
+    assert got[1].startswith("network.elements[1].shunt_stub.cable: unknown cable 'RG-59-clas'; "
+                             "did you mean 'RG-59-class'?")
     assert got[2].startswith("network.elements[2].line.allowances[0]: unknown allowance 'tee' (known: none defined")
     assert len(got) == 3  # 'RG-174' is the bare designation of RG-174-class: accepted
 
@@ -694,7 +699,8 @@ network:
 
 
 def test_template_shelf_keys_are_checked(tmp_path):
-    path = write(tmp_path, GOOD_LOAD + MASK + "network: {template: stepped_line, cut: {step: 2mm}, stubs: {stock: true}}\n")
+    path = write(tmp_path, GOOD_LOAD + MASK
+                 + "network: {template: stepped_line, cut: {step: 2mm}, stubs: {stock: true}}\n")
     got = [bare(p, path) for p in problems_of(path)]
     assert got == ["network: stubs: not an option of template stepped_line"]
     path = write(tmp_path, GOOD_LOAD + MASK + "network: {template: single_shunt_stub, cut: {step: 2mm}}\n", "b.yaml")

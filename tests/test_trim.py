@@ -173,8 +173,8 @@ def test_open_stub_cut_long_is_trimmed_back():
 def test_standard_errors_match_the_spread_over_noise():
     # Identity of least squares: where the data alone decide, the Jacobian's standard error is the
     # spread the fitted value shows over repeated measurements with fresh noise.  Every piece of its own
-    # cable and no Z0 fitted (no scale to split off, no prior in play), 60 repeats (their sample spread itself scatters by about ±9 %):
-    # the spread is within −30 % / +35 % of σ.
+    # cable and no Z0 fitted (no scale to split off, no prior in play), 60 repeats (their sample spread
+    # itself scatters by about ±9 %): the spread is within −30 % / +35 % of σ.
     media = (SOLID, FOAM, Medium(50.0, 0.70, name="a"), Medium(50.0, 0.75, name="b"))
     errors = [1.0, 3.0, -1.0, 0.0]
     fits = [_fit(media, errors, [0.0] * 4, fit_z0=False, seed=s, noise=0.004)[2] for s in range(60)]
@@ -389,7 +389,8 @@ def test_demo_trim_works_after_the_demo_run(tmp_path, monkeypatch, capsys):
     import importlib.util
     import json
 
-    spec = importlib.util.spec_from_file_location("make_asbuilt", ROOT / "configs" / "data" / "make_asbuilt_invented.py")
+    maker_py = ROOT / "configs" / "data" / "make_asbuilt_invented.py"
+    spec = importlib.util.spec_from_file_location("make_asbuilt", maker_py)
     maker = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(maker)
     monkeypatch.chdir(ROOT)

@@ -53,7 +53,8 @@ def main() -> int:
                        z0=problem.z_sys)
     notes = []
     for rep in describe(problem, built.design):
-        assert rep.kind in ("line", "shunt_stub") and rep.physical_m is not None and rep.vf is not None and rep.z0_ohm is not None
+        assert rep.kind in ("line", "shunt_stub")
+        assert rep.physical_m is not None and rep.vf is not None and rep.z0_ohm is not None
         err = CUT_ERRORS_MM.get(rep.index, 0.0)
         length = rep.physical_m + err * 1e-3
         vf = rep.vf * (1 + VF_SCALE)

@@ -238,13 +238,14 @@ def _rows(fit: Fit, lengths: _Lengths, v: np.ndarray, before: float) -> tuple[Pi
     step_of = {lengths.free[j]: n + 1 for n, j in enumerate(ranked)}
     rows = []
     for k, piece in enumerate(model.pieces):
-        j = lengths.free.index(k) if k in lengths.free else None
-        cut = float(v[j]) if j is not None else 0.0
+        free = lengths.free.index(k) if k in lengths.free else None
+        cut = float(v[free]) if free is not None else 0.0
         built = float(lengths.built[k])
         rows.append(PieceTrim(
             piece=piece, error_mm=float(fit.errors_mm[k]), sigma_mm=float(fit.errors_sigma_mm[k]),
             built_mm=built, trim_mm=cut, new_mm=built - cut,
-            effect_db=float(effects[j]) if j is not None else 0.0, step=step_of.get(k, 0), may=j is not None,
+            effect_db=float(effects[free]) if free is not None else 0.0, step=step_of.get(k, 0),
+            may=free is not None,
         ))
     return tuple(rows)
 

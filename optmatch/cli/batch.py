@@ -6,6 +6,7 @@ import argparse
 import sys
 from pathlib import Path
 
+from rich.progress import TaskID
 from rich.text import Text
 
 from optmatch.cli.terminal import console, progress, table
@@ -84,8 +85,8 @@ def run_batch_command(args: argparse.Namespace) -> int:
     class Display(BatchListener):
         def __init__(self) -> None:
             self.prog = progress()
-            self.overall = None
-            self.tasks: dict[str, object] = {}
+            self.overall: TaskID | None = None
+            self.tasks: dict[str, TaskID] = {}
             self.done: dict[str, int] = {}
 
         def _overall(self) -> None:
@@ -185,7 +186,7 @@ def run_worker_command(args: argparse.Namespace) -> int:
         results = join_files(args.files, storage, args.out)
     else:
         with progress() as prog:
-            tasks: dict[str, object] = {}
+            tasks: dict[str, TaskID] = {}
 
             def report(name: str, done: int, total: int, best: float | None) -> None:
                 if name not in tasks:

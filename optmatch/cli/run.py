@@ -83,7 +83,8 @@ def print_summary(doc: SummaryDoc) -> None:
         out.print(Text(f"mask: {mask_text(doc.mask)}"))
         out.print(Text(load_sentence(doc.load)))
     if doc.alternatives:
-        out.print(_rows(_table(ALTERNATIVE_HEAD, ALTERNATIVE_ALIGN, f"{doc.study}: alternatives compared (best design of each)"),
+        title = f"{doc.study}: alternatives compared (best design of each)"
+        out.print(_rows(_table(ALTERNATIVE_HEAD, ALTERNATIVE_ALIGN, title),
                         [alternative_cells(a) for a in doc.alternatives]))
     if doc.designs:
         ranked = f"ranked by {doc.ranked_by}" + (", within the ratings first" if doc.drive_w is not None else "")

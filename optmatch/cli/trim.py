@@ -85,7 +85,8 @@ def read_results(folder: Path, rank: int) -> Built:
     designs = doc.designs
     if not 1 <= rank <= len(designs):
         raise TrimInputError(f"{summary}: --design {rank}: no such design (the study kept "
-                             f"{len(designs)}: 1 to {len(designs)})" if designs else f"{summary}: the study found no design")
+                             f"{len(designs)}: 1 to {len(designs)})" if designs
+                             else f"{summary}: the study found no design")
     study = reload_study(folder, doc)
     sub, design = design_of(study, designs[rank - 1], f"{summary}: designs[{rank - 1}]")
     return Built(sub, design, rank, frozenset(str(k) for k in doc.files))
@@ -160,14 +161,17 @@ def run_trim(args: argparse.Namespace) -> int:
     measured = read_measurement(args.measured, "--measured")
     if not _covers(measured, lo, hi):
         a, b = measured.range_hz
-        raise TrimInputError(f"{args.measured}: covers {_mhz(a)} to {_mhz(b)}, not the mask band {_mhz(lo)} to {_mhz(hi)}")
+        raise TrimInputError(f"{args.measured}: covers {_mhz(a)} to {_mhz(b)}, "
+                             f"not the mask band {_mhz(lo)} to {_mhz(hi)}")
+    load_fn: Callable[[np.ndarray], np.ndarray]
     if args.load is not None:
         if args.load_name is not None:
             raise TrimInputError("--load-name and --load: give one of the two (--load replaces the study's load)")
         fresh = read_measurement(args.load, "--load")
         if not _covers(fresh, lo, hi):
             a, b = fresh.range_hz
-            raise TrimInputError(f"{args.load}: covers {_mhz(a)} to {_mhz(b)}, not the mask band {_mhz(lo)} to {_mhz(hi)}")
+            raise TrimInputError(f"{args.load}: covers {_mhz(a)} to {_mhz(b)}, "
+                                 f"not the mask band {_mhz(lo)} to {_mhz(hi)}")
         load_fn, load_range = fresh, fresh.range_hz
         problem = problem.single(0) if problem.several else problem
         problem = replace(problem, zload=fresh(problem.grid.freq))
@@ -185,14 +189,14 @@ def run_trim(args: argparse.Namespace) -> int:
     model = BuildModel.of(problem, built.design)
     fit = fit_build(model, f, gamma, load_fn(f))
     rules = TrimRules(short_stubs=args.trim_short_stubs, lines=args.trim_lines)
-    doc_args = dict(study=problem.name, results=str(folder), rank=built.rank, measured=str(args.measured),
-                    load=str(args.load) if args.load is not None else None, grid=problem.grid,
-                    design_margin_db=built.design.margin_db)
     if not fit.explained:
         raise TrimInputError(f"{args.measured}: {verdict_text(fit, args.load is not None)}")
     plan = plan_trims(fit, rules)
     measured_margin = measured_margin_db(gamma_against(measured, problem.grid.freq, problem.z_sys), problem)
-    doc = trim_document(fit=fit, plan=plan, rules=rules, measured_margin_db=measured_margin, **doc_args)
+    doc = trim_document(fit=fit, plan=plan, rules=rules, measured_margin_db=measured_margin, study=problem.name,
+                        results=str(folder), rank=built.rank, measured=str(args.measured),
+                        load=str(args.load) if args.load is not None else None, grid=problem.grid,
+                        design_margin_db=built.design.margin_db)
     files = write_trim_files(folder, doc, fit, plan, problem.grid)
     doc["files"] = [str(p) for p in files]
     if args.json:

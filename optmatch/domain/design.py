@@ -64,7 +64,6 @@ def describe(problem: Problem, design: Design) -> list[ElementReport]:
     net = problem.network
     u = design.vector()
     vals = net.values(u)
-    delays = net.delays(vals, design.choice)
     out = []
     for i, el in enumerate(net.elements):
         if not el.is_line_like:
@@ -72,7 +71,7 @@ def describe(problem: Problem, design: Design) -> list[ElementReport]:
                                      "", None, None, None, None, None, None, None))
             continue
         med = el.media[design.choice.medium[i]]
-        tau = float(delays[i][0])
+        tau = float(net.delay(vals, design.choice, i)[0])
         total = tau + el.extra_delay
         z0 = float(vals[i]["z0"][0]) if "z0" in vals[i] else med.z0
         vf = velocity_factor(z0, med.printed) if med.printed is not None else med.vf

@@ -26,7 +26,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
-from typing import Literal
+from typing import Literal, get_args
 
 import numpy as np
 from scipy.optimize import least_squares, nnls
@@ -99,7 +99,8 @@ class Feasibility:
         if not self.feasible:
             lead = "By this estimate, no" if self.basis == "estimated" else "No"
             text += (f". {lead} lossless network can meet this mask across the band (it asks for "
-                     f"{100 * self.demand_share:.0f} % of the Bode–Fano limit); searching for the closest design anyway")
+                     f"{100 * self.demand_share:.0f} % of the Bode–Fano limit); "
+                     "searching for the closest design anyway")
         return text
 
 
@@ -249,6 +250,8 @@ def _limits(family: Family, fit: dict) -> list[tuple[ModelName, float]]:
     return out
 
 
+# Every model name by its text; a fit with limits has at least one reactance, so its name is here.
+_MODEL_NAMES: dict[str, ModelName] = {name: name for name in get_args(ModelName)}
 RESISTIVE_FRACTION = 1e-6  # |X| below this share of |Z| everywhere: a resistive load
 
 
@@ -272,7 +275,8 @@ def ceiling(zload: np.ndarray, grid: Grid, z_sys: float) -> Feasibility:
         return Feasibility("resistive", {"r_ohm": float(np.mean(z.real))}, None, "exact", 0.0, 0.0, mask_rl)
     if np.any(z.real <= 0.0):
         return Feasibility("reactive", {}, 0.0, "exact", 0.0, math.inf, mask_rl)
-    fits = [(fit["error"], family, fit) for family in ("series", "parallel")
+    families: tuple[Family, ...] = ("series", "parallel")
+    fits = [(fit["error"], family, fit) for family in families
             if (fit := fit_family(family, z, f, z_sys)) is not None and _limits(family, fit)]
     if not fits:
         return Feasibility("resistive", {}, None, "estimated", math.inf, 0.0, mask_rl)
@@ -282,7 +286,7 @@ def ceiling(zload: np.ndarray, grid: Grid, z_sys: float) -> Feasibility:
     ceilings = [(flat_ceiling_db(m, fit["r_ohm"], x, bands), m, x) for m, x in limits]
     ceil_db, limit, _ = min(ceilings)
     share = max(demand(m, levels) / bound(m, fit["r_ohm"], x) for m, x in limits)
-    name = f"{family} R{'L' if fit['l_h'] is not None else ''}{'C' if fit['c_f'] is not None else ''}"
+    name = _MODEL_NAMES[f"{family} R{'L' if fit['l_h'] is not None else ''}{'C' if fit['c_f'] is not None else ''}"]
     values = {k: fit[k] for k in ("r_ohm", "l_h", "c_f") if fit[k] is not None}
     exact = err <= EXACT_FIT and len(limits) == 1
     return Feasibility(name, values, ceil_db, "exact" if exact else "estimated", 0.0 if exact else err, share,

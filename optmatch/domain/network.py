@@ -9,8 +9,9 @@ from __future__ import annotations
 
 import itertools
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 
@@ -182,7 +183,7 @@ class NetworkSpec:
             short=tuple(el.end == "short" for el in self.elements),
         )
 
-    def choice_from(self, picks: dict[str, object]) -> Choice:
+    def choice_from(self, picks: Mapping[str, Any]) -> Choice:
         """Build a :class:`Choice` from ``{name: option}`` as listed by :meth:`choice_space`."""
         base = self.default_choice()
         medium, short = list(base.medium), list(base.short)
@@ -190,7 +191,7 @@ class NetworkSpec:
             if name not in picks:
                 continue
             if name.endswith(".medium"):
-                medium[i] = int(picks[name])  # type: ignore[arg-type]
+                medium[i] = int(picks[name])
             else:
                 short[i] = picks[name] == "short"
         return Choice(tuple(medium), tuple(short))
@@ -215,21 +216,21 @@ class NetworkSpec:
             out[fp.element][fp.quantity] = fp.bound.from_unit(u[:, col])
         return out
 
+    def delay(self, values: list[dict[str, np.ndarray]], choice: Choice, i: int) -> np.ndarray:
+        """Delay (s) of line-like element ``i``'s cable section, excluding allowances."""
+        el = self.elements[i]
+        if not el.is_line_like:
+            raise ValueError(f"element {i} is a lumped part, which has no delay")
+        med = el.media[choice.medium[i]]
+        piece = el.piece(choice.medium[i])
+        length = values[i]["length"]
+        if piece is not None:
+            return np.full(np.shape(length), piece / (med.vf * C0))
+        return length if el.length_basis == "delay" else length / (med.vf * C0)
+
     def delays(self, values: list[dict[str, np.ndarray]], choice: Choice) -> list[np.ndarray | None]:
-        """Delay (s) of every line-like element's cable section, excluding allowances."""
-        res: list[np.ndarray | None] = []
-        for i, el in enumerate(self.elements):
-            if not el.is_line_like:
-                res.append(None)
-                continue
-            med = el.media[choice.medium[i]]
-            piece = el.piece(choice.medium[i])
-            length = values[i]["length"]
-            if piece is not None:
-                res.append(np.full(np.shape(length), piece / (med.vf * C0)))
-                continue
-            res.append(length if el.length_basis == "delay" else length / (med.vf * C0))
-        return res
+        """:meth:`delay` of every element, None for lumped parts."""
+        return [self.delay(values, choice, i) if el.is_line_like else None for i, el in enumerate(self.elements)]
 
     def pieces_used(self, choice: Choice) -> dict[tuple[str, float], int]:
         """Stock pieces a choice takes from the shelf: {(cable name, length m): count}."""
@@ -287,14 +288,13 @@ class NetworkSpec:
     def engine_params(self, u: np.ndarray, choice: Choice) -> list[dict]:
         """Engine parameter dicts for unit vectors ``u`` (n, dim) under discrete ``choice``."""
         vals = self.values(u)
-        delays = self.delays(vals, choice)
         params: list[dict] = []
         for i, el in enumerate(self.elements):
             if not el.is_line_like:
                 params.append({"value": vals[i]["value"]})
                 continue
             med = el.media[choice.medium[i]]
-            tau = delays[i]
+            tau = self.delay(vals, choice, i)
             metres = tau * med.vf * C0
             p = {
                 "z0": vals[i].get("z0", med.z0),

@@ -80,6 +80,11 @@ def population_search(
     return InnerResult(u=pop[order], score=fit[order], evaluations=evals)
 
 
+def _epigraph_cost(z: np.ndarray) -> float:
+    """The bound ``t`` of the epigraph form (the last coordinate), which the polish minimises."""
+    return z[-1]
+
+
 def minimax_polish(
     shortfall: Callable[[np.ndarray], np.ndarray],
     u0: np.ndarray,
@@ -121,10 +126,15 @@ def minimax_polish(
     t0 = float(np.max(shortfall(start[None, :])[0]))
     evals += 1
     z0 = np.append(start, t0)
-    res = minimize(lambda z: z[-1], z0, jac=lambda z: np.eye(d + 1)[-1], method="SLSQP",
-                   bounds=[(0.0, 1.0)] * d + [(None, None)],
-                   constraints=[{"type": "ineq", "fun": cons, "jac": cons_jac}],
-                   options={"maxiter": max_iter, "ftol": 1e-10})
+
+    def cost_grad(z: np.ndarray) -> np.ndarray:
+        return np.eye(d + 1)[-1]
+
+    res = minimize(  # type: ignore[call-overload]  # scipy-stubs want a scalar constraint; SLSQP takes ours
+        _epigraph_cost, z0, jac=cost_grad, method="SLSQP",
+        bounds=[(0.0, 1.0)] * d + [(None, None)],
+        constraints=[{"type": "ineq", "fun": cons, "jac": cons_jac}],
+        options={"maxiter": max_iter, "ftol": 1e-10})
     x = np.clip(res.x[:-1], 0.0, 1.0)
     t = float(np.max(shortfall(x[None, :])[0]))
     evals += 1
@@ -210,11 +220,15 @@ def _polish_one(shortfall: Callable[[np.ndarray], np.ndarray], shortfall_grad: S
 
         constraints.append({"type": "ineq", "fun": cons_held, "jac": cons_held_jac})
     cost = np.eye(d + 1)[-1]
-    res = minimize(lambda z: z[-1], np.append(u0, t0), jac=lambda z: cost, method="SLSQP",
-                   bounds=[(max(0.0, x0 - POLISH_REACH), min(1.0, x0 + POLISH_REACH)) for x0 in u0]
-                   + [(None, None)],
-                   constraints=constraints,
-                   options={"maxiter": max_iter, "ftol": ftol})
+
+    def cost_grad(z: np.ndarray) -> np.ndarray:
+        return cost
+
+    res = minimize(  # type: ignore[call-overload]  # scipy-stubs want a scalar constraint; SLSQP takes ours
+        _epigraph_cost, np.append(u0, t0), jac=cost_grad, method="SLSQP",
+        bounds=[(max(0.0, x0 - POLISH_REACH), min(1.0, x0 + POLISH_REACH)) for x0 in u0] + [(None, None)],
+        constraints=constraints,
+        options={"maxiter": max_iter, "ftol": ftol})
     x = np.clip(res.x[:-1], 0.0, 1.0)
     v = values(x)
     better = float(np.max(v)) < t0 and (not held or float(np.max(v[hold])) <= 0.0)

@@ -194,7 +194,8 @@ def _stepped_seed(net: NetworkSpec, z_load: complex, z_sys: float, f_ref: float)
     settings = []
     for el, z in zip(els, zs, strict=True):
         v = _length_value(el, 0, 0.25, f_ref)
-        if v is None or not (el.z0_free.lo <= z <= el.z0_free.hi):
+        free = el.z0_free
+        if v is None or free is None or not (free.lo <= z <= free.hi):
             return None
         settings.append(({"length": v, "z0": z}, 0, False))
     return _to_seed(net, settings, "binomial quarter-wave transformer")

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 
@@ -78,8 +78,10 @@ class Response:
     @classmethod
     def concat(cls, parts: Sequence[Response]) -> Response:
         """Join chunk responses along the candidate axis."""
-        cat = [np.concatenate([getattr(p, name) for p in parts]) for name in ("_v", "_i", "_k", "_p_load")]
-        return cls(*cat, parts[0].z_sys)
+        def cat(name: str) -> np.ndarray:
+            return np.concatenate([getattr(p, name) for p in parts])
+
+        return cls(cat("_v"), cat("_i"), cat("_k"), cat("_p_load"), parts[0].z_sys)
 
     @property
     def gamma(self) -> np.ndarray:
@@ -122,7 +124,7 @@ class Response:
 
 def _column(value: np.ndarray | float | bool, n: int, dtype: type = float) -> np.ndarray:
     """Per-candidate parameter as an (n, 1) column for broadcasting over frequency."""
-    arr = np.asarray(value, dtype=dtype)
+    arr: np.ndarray = np.asarray(value, dtype=dtype)
     if arr.ndim == 0:
         return arr.reshape(1, 1)
     if arr.shape != (n,):
@@ -261,10 +263,10 @@ def branch_pair(stage: Stage, p: Params, n: int, grid: Grid):
     shaped (n, F) or broadcastable to it."""
     if stage.kind == "stub":
         z0, ch, sh = line_terms(p, n, grid)
-        short = p.get("short", False)
-        if np.ndim(short) == 1 and (np.all(short) or not np.any(short)):
-            short = bool(short[0]) if len(short) else False
-        if np.ndim(short) == 0:
+        short = np.asarray(p.get("short", False))
+        if short.ndim == 1 and (np.all(short) or not np.any(short)):
+            short = np.asarray(bool(short[0]) if len(short) else False)
+        if short.ndim == 0:
             if bool(short):
                 return z0 * sh, ch  # short end: Z = Z0 tanh(γl)
             return ch, sh / z0  # open end: Z = Z0 coth(γl)
@@ -283,21 +285,21 @@ def branch_pair(stage: Stage, p: Params, n: int, grid: Grid):
 def walk(
     stages: Sequence[Stage],
     params: Sequence[Params],
-    freq: np.ndarray,
+    freq: np.ndarray | Grid,
     zload: np.ndarray | complex,
     n: int,
-):
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Walk the state from the load to the input for ``n`` candidates.
 
     Returns ``(V, I, k, p_load)`` each shaped (n, F): the input state, the accumulated scale
     factor (state = k × physical) and Re(V_L I_L*) at the load for the load state (Z_L, 1).
     """
     grid = freq if isinstance(freq, Grid) else Grid(freq)
-    freq = grid.freq
-    zl = np.broadcast_to(np.asarray(zload, dtype=complex), freq.shape)
-    v = np.broadcast_to(zl, (n, freq.size)).astype(complex)
-    i = np.ones((n, freq.size), dtype=complex)
-    k = np.ones((n, freq.size), dtype=complex)
+    f = grid.freq
+    zl = np.broadcast_to(np.asarray(zload, dtype=complex), f.shape)
+    v = np.broadcast_to(zl, (n, f.size)).astype(complex)
+    i = np.ones((n, f.size), dtype=complex)
+    k = np.ones((n, f.size), dtype=complex)
     branches = 0
     for stage, p in zip(stages, params, strict=True):
         if stage.kind == "line":
@@ -312,7 +314,7 @@ def walk(
         scale = np.abs(v[:, sl]) + np.abs(i[:, sl])
         inv = 1.0 / np.where(scale > 0.0, scale, 1.0)
         v, i, k = v * inv, i * inv, k * inv
-    p_load = np.broadcast_to(zl.real, (n, freq.size))
+    p_load = np.broadcast_to(zl.real, (n, f.size))
     return v, i, k, p_load
 
 
@@ -377,7 +379,7 @@ def evaluate_reduced(
         raise ValueError("system impedance must be positive")
     n = batch_size(params)
     grid = cached_grid(freq, n)
-    outs = []
+    outs: list[Any] = []
     for start in range(0, n, chunk):
         sl = slice(start, min(start + chunk, n))
         m = sl.stop - sl.start

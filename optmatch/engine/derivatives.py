@@ -92,16 +92,17 @@ def _tangent(p: Params, key: str, n: int) -> tuple[np.ndarray, np.ndarray] | Non
     return dirs, np.broadcast_to(arr[dirs].reshape(dirs.size, -1, 1), (dirs.size, n, 1))
 
 
-def _source(parts: list[tuple[np.ndarray, np.ndarray] | None], d: int, n: int, nf: int):
+def _source(parts: Sequence[tuple[np.ndarray, np.ndarray] | None], d: int, n: int,
+            nf: int) -> tuple[np.ndarray, np.ndarray] | None:
     """Sum derivative terms given on direction subsets into (directions, values (k, n, F))."""
-    parts = [q for q in parts if q is not None]
-    if not parts:
+    given = [q for q in parts if q is not None]
+    if not given:
         return None
-    if len(parts) == 1:
-        return parts[0]
-    dirs = np.unique(np.concatenate([q[0] for q in parts]))
+    if len(given) == 1:
+        return given[0]
+    dirs = np.unique(np.concatenate([q[0] for q in given]))
     out = np.zeros((dirs.size, n, nf), dtype=complex)
-    for q_dirs, q_val in parts:
+    for q_dirs, q_val in given:
         out[np.searchsorted(dirs, q_dirs)] += q_val
     return dirs, out
 

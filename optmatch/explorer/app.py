@@ -13,6 +13,7 @@ import math
 import posixpath
 from collections.abc import Sequence
 from pathlib import Path
+from typing import Any
 from urllib.parse import quote, unquote
 
 import flask
@@ -221,12 +222,13 @@ def moved_values(problem, design, key: str, ids: list[dict], values: list) -> di
 
 def _control_row(c: tuning.Control, key: str) -> html.Div:
     head = html.Span(f"{c.label} ({c.unit})", className="label")
+    data: dict[str, Any] = {"data-key": c.key}  # a data-* attribute, which only a keyword mapping can name
     if not c.free:
         return html.Div([head, html.Span(f"{c.value:.1f} {c.unit}, {c.why}", className="sub")], className="control")
     return html.Div([head, dcc.Slider(id={"type": "tune", "key": c.key, "design": key}, min=round(c.lo, 3),
                                       max=round(c.hi, 3), step=c.step, value=shown_value(c),
                                       allow_direct_input=True, marks=None, updatemode="mouseup")],
-                    className="control", **{"data-key": c.key})
+                    className="control", **data)
 
 
 # ---------------------------------------------------------------- the application
@@ -238,7 +240,7 @@ def create_app(root: Path, allowed_hosts: set[str] | None = None) -> Dash:
     ``allowed_hosts``: the ``Host`` header values to answer (None: any; the server sets them once bound).
     """
     results = Results(root)
-    app = Dash(__name__, title="optmatch explorer", update_title=None, assets_folder=str(ASSETS),
+    app = Dash(__name__, title="optmatch explorer", update_title="", assets_folder=str(ASSETS),
                suppress_callback_exceptions=True, serve_locally=True)
     server = app.server
     server.config["explorer_hosts"] = allowed_hosts
@@ -305,7 +307,7 @@ def create_app(root: Path, allowed_hosts: set[str] | None = None) -> Dash:
     def show_controls(key: str | None, name: str):  # noqa: ANN202
         opened = results.open(name) if name else None
         got = results.design(opened, key) if opened is not None and key else None
-        if got is None:
+        if got is None or key is None:
             return html.P("Select a design to tune it.", className="sub"), key or DASH
         sub, design, doc = got
         label = key + (f" ({doc.alternative})" if doc.alternative else "")
@@ -334,7 +336,7 @@ def create_app(root: Path, allowed_hosts: set[str] | None = None) -> Dash:
             curves.append(Curve(ov, perf.freq, perf.gamma, PALETTE[k % len(PALETTE)], "solid", 1.3))
         readout = (DASH, DASH, DASH, DASH)
         got = results.design(opened, key) if key else None
-        if got is not None:
+        if got is not None and key is not None:
             sub, design, _ = got
             moved = moved_values(sub.problem, design, key, ids, values)
             tuned = tuning.evaluate(sub.problem, tuning.tuned(sub.problem, design, moved), s.tolerance)
@@ -348,7 +350,8 @@ def create_app(root: Path, allowed_hosts: set[str] | None = None) -> Dash:
             worst = next((n for n, pf in zip(names, tuned.each, strict=True) if pf is perf), "")
             on = f" on {worst}, the worst" if worst else ""
             curves.append(Curve(label + on, perf.freq, perf.gamma, TUNED, "solid", 2.4))
-            readout = (f"{perf.margin_db:+.2f} dB", f"{perf.worst_rl_db:.2f} dB at {perf.freq[perf.worst_index] / 1e6:.3f} MHz",
+            worst_mhz = perf.freq[perf.worst_index] / 1e6
+            readout = (f"{perf.margin_db:+.2f} dB", f"{perf.worst_rl_db:.2f} dB at {worst_mhz:.3f} MHz",
                        _pct(tuned.robustness.yield_frac) + f" of {tuned.robustness.samples} builds",
                        f"{tuned.design.length_wl:.3f} λ")
         return (return_loss_figure(s.mask, curves), smith_figure(curves, s.system_ohm), *readout)
@@ -370,7 +373,7 @@ def create_app(root: Path, allowed_hosts: set[str] | None = None) -> Dash:
     def keep(n: int, key: str | None, values: list, ids: list[dict], name: str, kept: int):  # noqa: ANN202
         opened = results.open(name)
         got = results.design(opened, key) if opened is not None and key else None
-        if not n or got is None or opened is None or opened.entry.folder is None:
+        if not n or got is None or key is None or opened is None or opened.entry.folder is None:
             return "select a design first", no_update, no_update, no_update
         sub, design, doc = got
         moved = moved_values(sub.problem, design, key, ids, values)
@@ -384,8 +387,10 @@ def create_app(root: Path, allowed_hosts: set[str] | None = None) -> Dash:
         s = fresh.entry.summary if fresh is not None and fresh.entry.summary is not None else opened.entry.summary
         assert s is not None
         return (f"kept as {variant.name} ({', '.join(variant.files)}); summary.json lists it",
-                (kept or 0) + 1, {"table": "designs", "columns": [{"key": c.key, "heading": c.heading, "numeric": c.numeric}
-                                                                  for c in DESIGN_COLUMNS], "rows": _design_rows(s)},
+                (kept or 0) + 1,
+                {"table": "designs",
+                 "columns": [{"key": c.key, "heading": c.heading, "numeric": c.numeric} for c in DESIGN_COLUMNS],
+                 "rows": _design_rows(s)},
                 _overlay_options(s))
 
     return app

@@ -86,7 +86,8 @@ def smith_figure(curves: Sequence[Curve], z_sys: float) -> go.Figure:
         z = np.where(np.isfinite(z), z, 1e6)
         fig.add_trace(go.Scattersmith(real=np.real(z), imag=np.imag(z), mode="lines", name=c.label,
                                       line={"color": c.colour, "dash": c.dash, "width": c.width},
-                                      hovertemplate=f"{c.label}: " + "%{real:.3f} %{imag:+.3f}j (normalised)<extra></extra>"))
+                                      hovertemplate=f"{c.label}: "
+                                      + "%{real:.3f} %{imag:+.3f}j (normalised)<extra></extra>"))
         fig.add_trace(go.Scattersmith(real=[np.real(z[0])], imag=[np.imag(z[0])], mode="markers", showlegend=False,
                                       marker={"color": c.colour, "size": 6, "symbol": "circle-open"},
                                       hoverinfo="skip"))

@@ -77,7 +77,8 @@ def sortable(table: str, columns: Sequence[Column], rows: Sequence[dict]) -> htm
 def register(app: Dash) -> None:
     """The one callback that sorts every sortable table."""
 
-    @app.callback(Output({"type": "body", "table": MATCH}, "children"), Output({"type": "order", "table": MATCH}, "data"),
+    @app.callback(Output({"type": "body", "table": MATCH}, "children"),
+                  Output({"type": "order", "table": MATCH}, "data"),
                   Input({"type": "sort", "table": MATCH, "col": ALL}, "n_clicks"),
                   Input({"type": "rows", "table": MATCH}, "data"), State({"type": "order", "table": MATCH}, "data"),
                   prevent_initial_call=True)

@@ -59,7 +59,7 @@ def _z0(problem: Problem, design: Design, i: int) -> float:
 def _length_mm(problem: Problem, design: Design, i: int) -> float:
     """The cable section of element ``i`` in mm (as the build sheet gives it)."""
     net = problem.network
-    tau = float(net.delays(net.values(design.vector()), design.choice)[i][0])
+    tau = float(net.delay(net.values(design.vector()), design.choice, i)[0])
     el = net.elements[i]
     return tau * _vf(el, el.media[design.choice.medium[i]], _z0(problem, design, i)) * C0 * 1e3
 

@@ -17,7 +17,8 @@ from typing import IO, Any
 import numpy as np
 
 
-def _write_atomic(path: str | os.PathLike, mode: str, fill: Callable[[IO], None], suffix: str = ".tmp") -> Path:
+def _write_atomic(path: str | os.PathLike, mode: str, fill: Callable[[IO[Any]], object],
+                  suffix: str = ".tmp") -> Path:
     """Create a temp file beside ``path``, let ``fill`` write into it, fsync and ``os.replace``."""
     p = Path(path)
     folder = p.parent if str(p.parent) else Path(".")
@@ -41,7 +42,7 @@ def _write_atomic(path: str | os.PathLike, mode: str, fill: Callable[[IO], None]
 _TEMP_NAME = re.compile(r"^\.(?P<target>.+)\.[A-Za-z0-9_]{8}(?P<suffix>\.[A-Za-z0-9]+)$")
 
 
-def remove_orphan_temp_files(folder: str | os.PathLike, keep_targets: frozenset[str] = frozenset(),
+def remove_orphan_temp_files(folder: str | os.PathLike[str], keep_targets: frozenset[str] = frozenset(),
                              only_targets: frozenset[str] | None = None) -> list[Path]:
     """Remove the temporary files that writes killed before their rename left in ``folder``: those
     for ``only_targets`` (default: any file) except ``keep_targets``; returns what was removed.

@@ -40,6 +40,8 @@ REQUIRED = ("z0", "vf", "attenuation", "max_voltage", "max_power")
 class CatalogError(OptmatchError):
     """A catalog with problems; ``problems`` holds one line each."""
 
+    problems: list[str]
+
     def __init__(self, problems: list[str]) -> None:
         self.problems = [one_line(p) for p in problems]
         super().__init__("\n".join(self.problems))
@@ -114,7 +116,7 @@ def cable_from_entry(name: str, entry: Any, where: str) -> tuple[Cable | None, l
             fit_loss_two_point(pts[0][0], pts[0][1], pts[1][0], pts[1][1])
         except LineLossError as exc:
             raise ValueError(str(exc)) from None
-        return pts  # type: ignore[return-value]
+        return pts[0], pts[1]
 
     take("attenuation", points)
     for key in ("description", "source"):

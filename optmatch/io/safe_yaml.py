@@ -50,7 +50,7 @@ class _Loader(yaml.SafeLoader):
         super().__init__(stream)
         self._depth = 0
 
-    def compose_node(self, parent: yaml.Node | None, index: Any) -> yaml.Node:  # type: ignore[override]
+    def compose_node(self, parent: yaml.Node | None, index: Any) -> yaml.Node | None:
         self._depth += 1
         try:
             if self._depth > self.max_depth:

@@ -530,6 +530,6 @@ def read_batch_state(path: str | os.PathLike) -> BatchState:
 
 __all__ = ["FAIL", "FAIL_RATING", "FORMAT", "PASS", "VERDICTS", "AlternativeDoc", "Band", "BatchState", "BatchStudy",
            "BuildSheet", "CableTotal", "Choice", "DesignDoc", "LoadCase", "LoadMargin", "LoadPoint", "LoadView",
-           "MaskSegment", "ParetoPoint", "Piece", "VariantDoc",
-           "PowerCheck", "ResultsFileError", "SearchDoc", "SectionRating", "StockUse", "SummaryDoc", "from_json",
-           "passes", "read_batch_state", "read_summary", "to_json", "vswr_of_rl"]
+           "MaskSegment", "ParetoPoint", "Piece", "VariantDoc", "PowerCheck", "ResultsFileError", "SearchDoc",
+           "SectionRating", "StockUse", "SummaryDoc", "from_json", "passes", "read_batch_state", "read_summary",
+           "to_json", "vswr_of_rl"]

@@ -415,7 +415,8 @@ def plot_smith(
     whole.plot([], [], marker="s", linestyle="none", color="#5b6168", label="highest frequency")
     handles, labels = whole.get_legend_handles_labels()
     ranks = [label for label, _ in perfs]
-    order = sorted(range(len(labels)), key=lambda j: (labels[j] in ranks, ranks.index(labels[j]) if labels[j] in ranks else j))
+    order = sorted(range(len(labels)),
+                   key=lambda j: (labels[j] in ranks, ranks.index(labels[j]) if labels[j] in ranks else j))
     fig.legend([handles[j] for j in order], [labels[j] for j in order], loc="lower center", ncol=4, fontsize=8,
                frameon=False, bbox_to_anchor=(0.5, 0.05))
     _caption(fig, caption)

@@ -82,7 +82,8 @@ h1 { font-size: 26px; margin: 0 0 4px; } h2 { font-size: 19px; margin: 32px 0 10
 p.sub { color: var(--muted); margin: 0 0 20px; }
 a { color: var(--accent); text-decoration: none; } a:hover { text-decoration: underline; }
 .tiles { display: flex; gap: 12px; flex-wrap: wrap; margin: 0 0 24px; }
-.tile { border: 1px solid var(--line); border-radius: 8px; padding: 10px 16px; min-width: 120px; background: var(--band); }
+.tile { border: 1px solid var(--line); border-radius: 8px; padding: 10px 16px; min-width: 120px;
+        background: var(--band); }
 .tile b { display: block; font-size: 24px; } .tile span { color: var(--muted); font-size: 13px; }
 table { border-collapse: collapse; width: 100%; font-variant-numeric: tabular-nums; }
 th, td { padding: 8px 10px; border-bottom: 1px solid var(--line); text-align: left; vertical-align: top; }
@@ -91,7 +92,8 @@ td.num, th.num { text-align: right; white-space: nowrap; }
 tbody tr:hover { background: #fafbfd; }
 .chip { display: inline-block; padding: 1px 9px; border-radius: 999px; font-size: 13px; font-weight: 600;
         white-space: nowrap; }
-.chip.pass { color: var(--pass); background: var(--pass-bg); } .chip.fail { color: var(--fail); background: var(--fail-bg); }
+.chip.pass { color: var(--pass); background: var(--pass-bg); }
+.chip.fail { color: var(--fail); background: var(--fail-bg); }
 .chip.rating { color: var(--fail); background: var(--warn-bg); border: 1px solid var(--fail); }
 .chip.done { color: var(--ink); background: var(--band); border: 1px solid var(--line); }
 .chip.error, .chip.interrupted { color: var(--fail); background: var(--fail-bg); }
@@ -164,7 +166,8 @@ def collect_rows(root: Path) -> tuple[list[Row], list[str]]:
         elif s.status == "done" and summary is None:
             status, message = "error", f"{folder / 'summary.json'}: file not found"
         rows.append(Row(s.name, status, message, summary, s.file))
-    folders = sorted({p.parent for p in root.glob("*/summary.json")} | {p.parent for p in root.glob(f"*/{JOURNAL_GLOB}")})
+    folders = sorted({p.parent for p in root.glob("*/summary.json")}
+                     | {p.parent for p in root.glob(f"*/{JOURNAL_GLOB}")})
     for folder in folders:
         name = folder.name
         if name in seen:
@@ -354,13 +357,16 @@ def study_html(row: Row, folder: Path) -> str:
                    + (f'<ul class="msg">{items}</ul>' if items else "<p>Within every rating in force.</p>"))
     desc = f'<p class="sub">{_e(s.description)}</p>' if s.description else ""
     ceiling = f"<p>Bode–Fano {_e(s.feasibility.statement)}.</p>\n" if s.feasibility is not None else ""
+    alternatives = ""
+    if s.alternatives:
+        compared = _html_table(ALTERNATIVE_HEAD, [alternative_cells(a) for a in s.alternatives], ALTERNATIVE_ALIGN)
+        alternatives = f"<h2>Alternatives compared</h2>\n{compared}\n"
     body = (f'<p><a href="../{REPORT_HTML}">← all studies</a></p>\n<h1>{_e(row.name)}</h1>\n{desc}\n'
             f'<dl class="facts">{dl}</dl>\n<h2>The load alone (no network)</h2>\n'
             f"{_html_table(LOAD_HEAD, load_cells(s.load), 'lrrrr')}\n<p>{_e(load_sentence(s.load))}</p>\n"
             f"{ceiling}"
             f'<h2>Plots</h2>\n<div class="plots">{figs or "<p>No plots.</p>"}</div>\n'
-            + (f"<h2>Alternatives compared</h2>\n{_html_table(ALTERNATIVE_HEAD, [alternative_cells(a) for a in s.alternatives], ALTERNATIVE_ALIGN)}\n"
-               if s.alternatives else "")
+            + alternatives
             + f"<h2>Ranked designs</h2>\n{_html_table(DESIGN_HEAD, [design_cells(d) for d in s.designs], 'rlrrrrrl')}\n"
             + _loads_html(s)
             + f"<h2>Build sheet of the best design</h2>\n{build}\n{ratings}\n"
@@ -388,7 +394,8 @@ def _loads_html(s: SummaryDoc) -> str:
     more = f" (the {len(alone)} worst alone; {left} more in summary.json)" if left else ""
     return (f"<h2>Each load</h2>\n<p>{_e(loads_sentence(s) + more)}</p>\n"
             + _html_table(LOADS_HEAD, alone, LOADS_ALIGN) + "\n"
-            + _html_table(load_margin_head(s), [load_margin_cells(d, s) for d in s.designs], load_margin_align(s)) + "\n")
+            + _html_table(load_margin_head(s), [load_margin_cells(d, s) for d in s.designs], load_margin_align(s))
+            + "\n")
 
 
 def _loads_markdown(s: SummaryDoc) -> list[str]:
@@ -422,8 +429,9 @@ def batch_markdown(rows: list[Row], generated: str) -> str:
              *table([label for _, label, _ in COLUMNS], table_rows, "lll" + "r" * 5), ""]
     found = _alternative_rows(rows)
     if found:
-        lines += ["## Alternatives compared", "", *table(("study", *ALTERNATIVE_HEAD), [[md(c) for c in r] for r in found],
-                                                         "l" + ALTERNATIVE_ALIGN), ""]
+        cells = [[md(c) for c in r] for r in found]
+        lines += ["## Alternatives compared", "",
+                  *table(("study", *ALTERNATIVE_HEAD), cells, "l" + ALTERNATIVE_ALIGN), ""]
     lines += ["## Before you build", "",
              *[f"- {c}" for c in CAUTIONS], ""]
     return "\n".join(lines)
@@ -464,7 +472,8 @@ def study_markdown(row: Row, folder: Path) -> str:
     best = s.best
     if best is not None and best.power is not None:
         lines += ["", f"## Ratings at {best.power.drive_w:g} W", ""]
-        lines += [f"- **Over rating:** {md(line)}" for line in best.power.over_rating] or ["Within every rating in force."]
+        lines += ([f"- **Over rating:** {md(line)}" for line in best.power.over_rating]
+                  or ["Within every rating in force."])
     lines += ["", "## Before you build", "", *[f"- {c}" for c in CAUTIONS], ""]
     return "\n".join(lines)
 

@@ -67,7 +67,8 @@ def num(value: float | None, fmt: str, infinite: str = "∞") -> str:
 def element_text(e: ElementReport) -> str:
     """One element in a line: ``line 44.1° 50 Ω``, ``shunt stub (open) 68.7° 50 Ω``, ``shunt capacitor 3.3 pF``."""
     if e.kind == "lumped":
-        return f"{e.connection} {PART_NAMES.get(e.part or '', 'part')} {si(float(e.value or 0.0), PART_UNITS.get(e.part or '', ''))}"
+        part = e.part or ""
+        return f"{e.connection} {PART_NAMES.get(part, 'part')} {si(float(e.value or 0.0), PART_UNITS.get(part, ''))}"
     label = e.kind.replace("_", " ") + (f" ({e.end})" if e.end else "")
     return f"{label} {float(e.electrical_deg or 0.0):.1f}° {float(e.z0_ohm or 0.0):.4g} Ω"
 
@@ -117,8 +118,8 @@ BUILD_HEAD = ("#", "part", "cable", "Z0 (Ω)", "end", "electrical incl. allowanc
 
 def build_cells(sheet: BuildSheet) -> list[list[str]]:
     """The build sheet's rows, one per piece (shared by the terminal, summary.md, cut list and study page)."""
-    return [[str(p.element), p.kind.replace("_", " "), p.cable, f"{p.z0_ohm:.4g}", p.end or DASH, f"{p.electrical_deg:.1f}",
-             f"{p.allowance_deg:.1f}", f"{p.cut_mm:.1f}"] for p in sheet.pieces]
+    return [[str(p.element), p.kind.replace("_", " "), p.cable, f"{p.z0_ohm:.4g}", p.end or DASH,
+             f"{p.electrical_deg:.1f}", f"{p.allowance_deg:.1f}", f"{p.cut_mm:.1f}"] for p in sheet.pieces]
 
 
 MASK_HEAD = ("from", "to", "min. return loss (dB)", "max. VSWR", "max. network loss (dB)")
@@ -234,8 +235,9 @@ def design_rows(designs: Sequence[DesignDoc]) -> list[dict]:
     """
     rows = []
     for d in designs:
-        row: dict = {"rank": d.rank, **({"alternative": d.alternative} if d.alternative else {}), "verdict": d.verdict, "margin_db": d.margin_db,
-                     "worst_rl_db": d.worst_return_loss_db, "worst_freq_hz": d.worst_freq_hz,
+        row: dict = {"rank": d.rank, **({"alternative": d.alternative} if d.alternative else {}),
+                     "verdict": d.verdict, "margin_db": d.margin_db, "worst_rl_db": d.worst_return_loss_db,
+                     "worst_freq_hz": d.worst_freq_hz,
                      "length_wl": d.total_length_wl,
                      "yield_frac": None if d.robustness is None else d.robustness.yield_frac}
         if d.load_margins:
@@ -325,7 +327,8 @@ def build_markdown(doc: SummaryDoc) -> list[str]:
     if sheet is None:
         return []
     lines = [f"## Build sheet of the best design (rank {sheet.design_rank})", "",
-             f"Pieces from the load outwards; electrical lengths at {mhz(doc.reference_hz)}. {md(sheet.allowances)}", ""]
+             f"Pieces from the load outwards; electrical lengths at {mhz(doc.reference_hz)}. "
+             f"{md(sheet.allowances)}", ""]
     if sheet.pieces:
         lines += table(BUILD_HEAD, _cells(build_cells(sheet)), "llllllrr")
     else:
@@ -425,7 +428,8 @@ def summary_markdown(doc: SummaryDoc) -> str:
     if doc.designs:
         per_load = matched_input_files(doc)
         links += [f"- [{title}]({path})" for title, path in RESULT_FILES.items()
-                  if (path != "cut_list.md" or doc.build is not None) and not (per_load and path == "matched_input.s1p")]
+                  if (path != "cut_list.md" or doc.build is not None)
+                  and not (per_load and path == "matched_input.s1p")]
         links[-1:-1] = [f"- [Matched input on load {md(name)}, 1-port Touchstone]({path})"
                         for name, path in per_load.items()]
     if links:

@@ -74,8 +74,8 @@ def verdict_text(fit: Fit, load_given: bool) -> str:
     for j, b in enumerate(fit.at_bound[n:]):
         if b:
             what = "VF" if j < len(model.cables) else "Z0"
-            causes.append(f"cable {names[j]} would need its {what} off by {abs(fit.x[n + j]):.0f} % (a piece of another "
-                          "cable?)")
+            causes.append(f"cable {names[j]} would need its {what} off by {abs(fit.x[n + j]):.0f} % "
+                          "(a piece of another cable?)")
     likely = "; ".join(causes) + "; " if causes else ""
     advice = ("the load changed since it was measured, a bad connector or a wrong piece; measure the bare load again "
               "and give it with --load" if not load_given else
@@ -92,7 +92,8 @@ def trim_document(*, study: str, results: str, rank: int, measured: str, load: s
     pieces = []
     for t, at_bound in zip(plan.pieces, fit.at_bound[:n], strict=True):
         pieces.append({
-            "element": t.piece.index + 1, "part": part_name(t.piece.kind, t.piece.end, t.piece.stock), "cable": t.piece.cable,
+            "element": t.piece.index + 1, "part": part_name(t.piece.kind, t.piece.end, t.piece.stock),
+            "cable": t.piece.cable,
             "design_mm": t.piece.nominal_mm, "error_mm": t.error_mm, "sigma_mm": t.sigma_mm,
             "built_mm": t.built_mm, "trim_mm": t.trim_mm, "new_mm": t.new_mm, "step": t.step or None,
             "effect_db": t.effect_db if t.step else None, "may_trim": t.may, "at_bound": at_bound,
@@ -202,7 +203,8 @@ def trim_markdown(doc: Mapping, plot_name: str | None = TRIM_PNG) -> str:
     for c in fit["cables"]:
         vf = (f"{c['vf_scale_pct']:+.2f} ± {c['vf_sigma_pct']:.2f}" if c["vf_scale_pct"] is not None
               else "not separable (one piece)")
-        lines.append(f"| {c['cable']} | {c['vf_design']:.3g} | {vf} | {c['z0_scale_pct']:+.2f} ± {c['z0_sigma_pct']:.2f} |")
+        z0 = f"{c['z0_scale_pct']:+.2f} ± {c['z0_sigma_pct']:.2f}"
+        lines.append(f"| {c['cable']} | {c['vf_design']:.3g} | {vf} | {z0} |")
     lines += ["", "## Margin against the mask", "",
               f"- as designed: {_sign(m['design'])} dB",
               f"- measured: {_sign(m['measured'])} dB (return loss only)",
@@ -226,8 +228,8 @@ def trim_markdown(doc: Mapping, plot_name: str | None = TRIM_PNG) -> str:
         r = doc["recut"]
         if r is not None:
             verb = "restores the mask" if r["restores"] else "comes closest, but does not reach the mask"
-            lines.append(f"Recut element {r['element']} ({r['part']}, {r['cable']}) to {r['length_mm']:.1f} mm: it {verb} "
-                         f"(predicted {_sign(r['margin_db'])} ± {r['margin_sigma_db']:.2f} dB).")
+            lines.append(f"Recut element {r['element']} ({r['part']}, {r['cable']}) to {r['length_mm']:.1f} mm: "
+                         f"it {verb} (predicted {_sign(r['margin_db'])} ± {r['margin_sigma_db']:.2f} dB).")
             if r["trims"]:
                 lines.append("With it: " + "; ".join(f"element {t['element']} {t['trim_mm']:.1f} mm off "
                                                         f"({t['how']})" for t in r["trims"]) + ".")
@@ -273,7 +275,8 @@ def plot_trim(fit: Fit, plan: TrimPlan, grid: Grid, path: str | os.PathLike) -> 
         x = np.array([seg.f_lo, seg.f_hi]) / 1e6
         ax.fill_between(x, 0.0, seg.min_rl_db, color=FORBIDDEN, alpha=0.55, linewidth=0,
                         label="below the mask (fails)" if k == 0 else None)
-        ax.plot(x, [seg.min_rl_db] * 2, color=REQUIREMENT, linewidth=1.6, label="required return loss" if k == 0 else None)
+        ax.plot(x, [seg.min_rl_db] * 2, color=REQUIREMENT, linewidth=1.6,
+                label="required return loss" if k == 0 else None)
     for y, label, colour, width, style in curves:
         ax.plot(f, y, color=colour, linewidth=width, linestyle=style, label=label)
     ax.set_ylim(0.0, y_top)

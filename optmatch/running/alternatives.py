@@ -83,7 +83,8 @@ def pieces_and_junctions(elements: Sequence[ElementReport]) -> tuple[int, int]:
     at.  So a network has one point more than it has series elements (none when it has no element).
     """
     pieces = sum(1 for e in elements if e.kind != "lumped")
-    series = sum(1 for e in elements if not (e.kind == "shunt_stub" or (e.kind == "lumped" and e.connection == "shunt")))
+    series = sum(1 for e in elements
+                 if not (e.kind == "shunt_stub" or (e.kind == "lumped" and e.connection == "shunt")))
     return pieces, (series + 1 if elements else 0)
 
 

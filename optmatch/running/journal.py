@@ -117,7 +117,7 @@ class JournalLock:
         self._fd = fd
 
     def _wait(self, fd: int) -> None:
-        started = time.monotonic()
+        started: float | None = time.monotonic()
         pause_s = 0.001
         while True:
             time.sleep(pause_s)

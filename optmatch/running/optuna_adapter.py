@@ -14,13 +14,15 @@ from __future__ import annotations
 
 import inspect
 from collections.abc import Callable
-from contextlib import AbstractContextManager
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import optuna
 from optuna.storages import BaseStorage, RDBStorage
 from optuna.storages._heartbeat import BaseHeartbeat, get_heartbeat_thread, is_heartbeat_enabled
 from optuna.trial import FrozenTrial
+
+if TYPE_CHECKING:  # the type of what get_heartbeat_thread returns; only the type checker reads it
+    from optuna.storages._heartbeat import BaseHeartbeatThread
 
 TESTED_OPTUNA = ">=4.2,<5.1"
 
@@ -42,7 +44,7 @@ def trial_id(trial: FrozenTrial | optuna.Trial) -> int:
     return trial._trial_id
 
 
-def heartbeat(trial: optuna.Trial, storage: BaseStorage) -> AbstractContextManager[Any]:
+def heartbeat(trial: optuna.Trial, storage: BaseStorage) -> BaseHeartbeatThread:
     """optuna's heartbeat thread for a running trial, as a ``with`` block (does nothing when the
     storage has no heartbeat)."""
     return get_heartbeat_thread(trial_id(trial), storage)
@@ -98,8 +100,9 @@ def rdb_heartbeat(storage: RDBStorage) -> tuple[int | None, int | None]:
     return storage.heartbeat_interval, storage.grace_period
 
 
-def rdb_stale_callback_kwargs(callback: StaleCallback) -> dict[str, StaleCallback]:
-    """The keyword that hands ``RDBStorage`` its stale-trial callback (renamed in optuna 4.9)."""
+def rdb_stale_callback_kwargs(callback: StaleCallback) -> dict[str, Any]:
+    """The keyword that hands ``RDBStorage`` its stale-trial callback (renamed in optuna 4.9, so its
+    name is known only at run time, and the type checker sees a plain keyword mapping)."""
     params = inspect.signature(RDBStorage.__init__).parameters
     key = "heartbeat_stale_trial_callback" if "heartbeat_stale_trial_callback" in params else "failed_trial_callback"
     return {key: callback}
@@ -169,5 +172,5 @@ def private_api_problems() -> list[str]:
 
 
 __all__ = ["TESTED_OPTUNA", "DatabaseStaleHook", "HeartbeatHooks", "fail_stale_trials", "has_heartbeat",
-           "heartbeat", "private_api_problems", "rdb_heartbeat", "rdb_stale_callback_kwargs", "rdb_stale_trial_ids", "study_id",
-           "study_storage", "trial_id"]
+           "heartbeat", "private_api_problems", "rdb_heartbeat", "rdb_stale_callback_kwargs", "rdb_stale_trial_ids",
+           "study_id", "study_storage", "trial_id"]

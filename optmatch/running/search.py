@@ -65,7 +65,8 @@ class SearchOutcome:
     trial_time_s: float       # all complete trials, this run and earlier ones (s)
     seeds: list[Seed]
     stopped_early: bool
-    distinct: list[Design] = field(default_factory=list)  # every distinct design found, ranked (designs: the first keep)
+    # every distinct design found, ranked (designs: the first keep)
+    distinct: list[Design] = field(default_factory=list)
     ranked_by: str = "margin"  # what ranked ``designs``: margin, yield, pareto, or share (of several loads met)
 
 

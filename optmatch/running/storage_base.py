@@ -16,7 +16,7 @@ import socket
 import sys
 import time
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import optuna
 from optuna.trial import FrozenTrial, TrialState
@@ -126,7 +126,13 @@ class RetryStaleTrial:
 # ---------------------------------------------------------------- owner records
 
 
-class RecordsOwner:
+if TYPE_CHECKING:  # what the mixin is mixed into, for the type checker
+    from optuna.storages import BaseStorage as _Storage
+else:
+    _Storage = object
+
+
+class RecordsOwner(_Storage):
     """Writes the owner record no later than the trial starts running here, so that a worker
     killed at any instant leaves no running trial without an owner: a new trial is created with
     its owner in the same record, and a queued trial gets the record just before it is claimed
@@ -156,7 +162,8 @@ class RecordsOwner:
             template_trial = copy.copy(template_trial)
             template_trial.system_attrs = {**template_trial.system_attrs, OWNER_KEY: owner_record()}
             owned = True
-        trial_id = super().create_new_trial(study_id, template_trial)  # type: ignore[misc]
+        trial_id = super().create_new_trial(  # type: ignore[safe-super]  # the storage mixed in after implements it
+            study_id, template_trial)
         if owned:
             self._beats()[trial_id] = time.monotonic()
         return trial_id
@@ -164,7 +171,8 @@ class RecordsOwner:
     def set_trial_state_values(self, trial_id: int, state: TrialState, values: Any = None) -> bool:
         if state == TrialState.RUNNING:
             self.record_owner(trial_id)
-        taken = super().set_trial_state_values(trial_id, state, values)  # type: ignore[misc]
+        taken = super().set_trial_state_values(  # type: ignore[safe-super]  # the storage mixed in after implements it
+            trial_id, state, values)
         if taken and state == TrialState.RUNNING:
             self.record_owner(trial_id)  # again: another claimant may have written in between
         if state.is_finished():
@@ -173,7 +181,7 @@ class RecordsOwner:
 
     def record_owner(self, trial_id: int) -> None:
         try:
-            self.set_trial_system_attr(trial_id, OWNER_KEY, owner_record())  # type: ignore[attr-defined]
+            self.set_trial_system_attr(trial_id, OWNER_KEY, owner_record())
         except optuna.exceptions.UpdateFinishedTrialError:
             return  # the trial ended between two beats
         self._beats()[trial_id] = time.monotonic()

@@ -19,11 +19,13 @@ import os
 import re
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 from typing import Any, Literal, get_args
 
 import numpy as np
 from pydantic import BaseModel, TypeAdapter, ValidationError
+from pydantic_core import ErrorDetails
 
 from optmatch.domain import loads
 from optmatch.domain.cables import Cable
@@ -220,7 +222,7 @@ def _allowed_keys(loc: tuple) -> list[str]:
     return [f.alias or n for n, f in cls.model_fields.items()]
 
 
-def _message(err: dict) -> str:
+def _message(err: ErrorDetails) -> str:
     kind = err["type"]
     ctx = err.get("ctx") or {}
     given = err.get("input")
@@ -466,7 +468,7 @@ def _measured_loads(raw: dict, study_dir: Path, probs: _Problems, given: Given) 
         if room <= 0:
             probs.add(where, f"no room for more loads: at most {limits.MAX_LOADS:,} in a study")
             return out
-        files = probs.guard(where, lambda pattern=pattern, room=room: expand_pattern(pattern, study_dir, room))
+        files = probs.guard(where, partial(expand_pattern, pattern, study_dir, room))
         if files is None:
             continue
         room -= len(files)
@@ -477,11 +479,11 @@ def _measured_loads(raw: dict, study_dir: Path, probs: _Problems, given: Given) 
                            f"{limits.MAX_LOAD_BYTES // 2**20} MiB of load data in a study")
         return out
     for where, name, text in wanted:
-        got = probs.guard(where, lambda text=text: _read_one(text, study_dir, given))
+        got = probs.guard(where, partial(_read_one, text, study_dir, given))
         if got is not None:
             out.append(_Measured(where, name, *got))
     for where, path in matched:
-        got = probs.guard(where, lambda path=path: read_one_port(path))
+        got = probs.guard(where, partial(read_one_port, path))
         if got is not None:
             out.append(_Measured(where, _stem_name(path), got, path, path.read_bytes()))
     return out
@@ -556,6 +558,7 @@ def _check_load_names(raw: dict, measured: list[_Measured], probs: _Problems) ->
     for i, entry in enumerate(entries):
         if not isinstance(entry, dict):
             continue
+        found: list[tuple[str | None, str | None]]
         if "files" in entry:
             found = [(m.name, m.path.name if m.path else "") for m in measured if m.where == f"loads[{i}].files"]
         elif isinstance(entry.get("name"), str):
@@ -578,14 +581,14 @@ def _check_coverage(measured: list[_Measured], grid: Grid | None, probs: _Proble
     """Every measured load covers the mask's grid (checked whatever else is wrong)."""
     if grid is not None:
         for m in measured:
-            probs.guard(m.where, lambda m=m: m.data(grid.freq))
+            probs.guard(m.where, partial(m.data, grid.freq))
 
 
 def _load_rows(sources: list[tuple[str, LoadSource]] | None, grid: Grid | None, probs: _Problems) -> np.ndarray | None:
     """Every load's impedance on the grid (Ω), (L, F); a load that does not cover the mask is a problem."""
     if sources is None or grid is None:
         return None
-    rows = [probs.guard(where, lambda src=src: src.fn(grid.freq)) for where, src in sources]
+    rows = [probs.guard(where, partial(src.fn, grid.freq)) for where, src in sources]
     if any(r is None for r in rows):
         return None
     return np.array(rows, dtype=complex)
@@ -641,9 +644,10 @@ def _lumped_bound(value: PartValue) -> Bound:
 def _template_elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
                        shelf: ShelfContext | None) -> tuple[ElementSpec, ...] | None:
     """A template's elements; with shelf keys, each element is built from the shelf for its role."""
-    assert net.template is not None
+    template = net.template
+    assert template is not None
     vf = net.vf if net.vf is not None else 1.0
-    stepped = net.template == "stepped_line"
+    stepped = template == "stepped_line"
     uses = {role: any(v not in (None, False) for v in net.role_keys(role).values()) for role in ROLES}
     z0 = net.z0
     media, z0_free = _media(z0, vf, z_sys, STEPPED_Z0_OHM if stepped and not any(uses.values()) else None)
@@ -652,7 +656,7 @@ def _template_elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Pr
     if (net.spacing and spacing is None) or (net.max_length and max_length is None):
         return None
     plain = probs.guard("network.template", lambda: build_template(
-        net.template, f_ref, media, z0_free=z0_free, end=net.end or "either", spacing=spacing,
+        template, f_ref, media, z0_free=z0_free, end=net.end or "either", spacing=spacing,
         max_length=max_length, sections=net.sections or 3))
     if plain is None or not any(uses.values()):
         return plain
@@ -690,7 +694,7 @@ def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
         label = f"{kind} {i + 1}"
         if isinstance(spec, LumpedModel):
             out.append(ElementSpec("lumped", connection=spec.connection, part=spec.part,
-                                   value=_lumped_bound(spec.value), label=label))
+                                   value=_lumped_bound(spec.part_value), label=label))
             continue
         assert isinstance(spec, (LineModel, StubModel))
         length = _length_bound(spec.length, f_ref, f"{where}.length", probs) if spec.length is not None else None
@@ -706,7 +710,7 @@ def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
             continue
         media, z0_free = _media(spec.z0, spec.vf, z_sys)
         end = spec.end if isinstance(spec, StubModel) else None
-        out.append(ElementSpec(kind, length=length.bound, length_basis=length.basis, media=media,  # type: ignore[arg-type]
+        out.append(ElementSpec(kind, length=length.bound, length_basis=length.basis, media=media,
                                z0_free=z0_free, end=end, label=label))
     return tuple(out) if ok else None
 
@@ -744,7 +748,8 @@ def _role_bodies(raw: dict) -> list[tuple[str, dict]]:
 
 def _check_names(raw: dict, catalog: dict[str, Cable], probs: _Problems) -> None:
     """Cable and allowance names anywhere in the file, whatever else is wrong with it."""
-    shelf = raw.get("shelf") if isinstance(raw.get("shelf"), dict) else {}
+    given = raw.get("shelf")
+    shelf = given if isinstance(given, dict) else {}
     allowances = shelf.get("allowances")
     known = [k for k in allowances if isinstance(k, str)] if isinstance(allowances, dict) else []
     for where, body in _role_bodies(raw):
@@ -834,7 +839,8 @@ def _sections(raw: dict, exc: ValidationError) -> dict[str, Any]:
     got: dict[str, Any] = {}
     for key, model in SECTION_MODELS.items():
         if key in raw and key not in bad:
-            got[key] = model.validate_python(raw[key]) if isinstance(model, TypeAdapter) else model.model_validate(raw[key])
+            got[key] = (model.validate_python(raw[key]) if isinstance(model, TypeAdapter)
+                        else model.model_validate(raw[key]))
         elif key not in raw and key not in bad and key in ("search", "tolerance"):
             got[key] = model()
     if "alternatives" in raw and "alternatives" not in bad:
@@ -903,9 +909,11 @@ def _resolve(raw: dict, probs: _Problems, p: Path, study_dir: Path, given: Given
     if ("load" in parts) != ("loads" in parts):
         sources = _sources(parts.get("load"), parts.get("loads"), measured)
     n_loads = len(sources) if sources is not None else 1
-    if grid is not None and sources is not None and n_loads > 1 and n_loads * grid.freq.size > limits.MAX_LOAD_POINTS:
+    if (grid is not None and sources is not None and n_loads > 1
+            and n_loads * grid.freq.size > limits.MAX_LOAD_POINTS):
         probs.add("loads", f"{n_loads:,} loads × {grid.freq.size:,} grid points = {n_loads * grid.freq.size:,} points "
-                           f"to evaluate per design; at most {limits.MAX_LOAD_POINTS:,} (fewer loads or fewer mask points)")
+                           f"to evaluate per design; at most {limits.MAX_LOAD_POINTS:,} "
+                           "(fewer loads or fewer mask points)")
         sources = None
     zrows = _load_rows(sources, grid, probs)
     elements = None

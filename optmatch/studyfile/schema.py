@@ -34,6 +34,7 @@ from pydantic import (
 )
 
 from optmatch.domain.mask import DEFAULT_POINTS
+from optmatch.domain.network import ElementKind
 from optmatch.domain.templates import TEMPLATES
 from optmatch.errors import OptmatchError, did_you_mean
 from optmatch.studyfile import limits
@@ -94,22 +95,23 @@ def _json_quantity(kind: QuantityKind) -> dict:
     return body
 
 
-def _quantity(kind: QuantityKind):  # noqa: ANN202 - an Annotated type
-    return Annotated[float, PlainValidator(_wrap(lambda v, what: parse_quantity(v, kind, what))),
-                     WithJsonSchema(_json_quantity(kind))]
+def _parser(kind: QuantityKind) -> PlainValidator:
+    """The validator of a quantity of ``kind``: text with a unit (or a bare number where the kind
+    takes one) to its SI number."""
+    return PlainValidator(_wrap(lambda v, what: parse_quantity(v, kind, what)))
 
 
 _NUMBER_JSON = {"anyOf": [{"type": "number"}, {"type": "string", "pattern": rf"^\s*{NUMBER}\s*$"}]}
-Frequency = _quantity(FREQUENCY)  # Hz
-Ohms = _quantity(IMPEDANCE)  # Ω, real, > 0
-Resistance = _quantity(RESISTANCE)  # Ω
-Henry = _quantity(INDUCTANCE)
-Farad = _quantity(CAPACITANCE)
-Decibels = _quantity(DECIBELS)
-ReturnLossDb = _quantity(RETURN_LOSS)
-LossDb = _quantity(LOSS)
-Seconds = _quantity(DURATION)
-Watts = _quantity(POWER)
+Frequency = Annotated[float, _parser(FREQUENCY), WithJsonSchema(_json_quantity(FREQUENCY))]  # Hz
+Ohms = Annotated[float, _parser(IMPEDANCE), WithJsonSchema(_json_quantity(IMPEDANCE))]  # Ω, real, > 0
+Resistance = Annotated[float, _parser(RESISTANCE), WithJsonSchema(_json_quantity(RESISTANCE))]  # Ω
+Henry = Annotated[float, _parser(INDUCTANCE), WithJsonSchema(_json_quantity(INDUCTANCE))]
+Farad = Annotated[float, _parser(CAPACITANCE), WithJsonSchema(_json_quantity(CAPACITANCE))]
+Decibels = Annotated[float, _parser(DECIBELS), WithJsonSchema(_json_quantity(DECIBELS))]
+ReturnLossDb = Annotated[float, _parser(RETURN_LOSS), WithJsonSchema(_json_quantity(RETURN_LOSS))]
+LossDb = Annotated[float, _parser(LOSS), WithJsonSchema(_json_quantity(LOSS))]
+Seconds = Annotated[float, _parser(DURATION), WithJsonSchema(_json_quantity(DURATION))]
+Watts = Annotated[float, _parser(POWER), WithJsonSchema(_json_quantity(POWER))]
 Percent = Annotated[float, PlainValidator(_wrap(parse_percent)), WithJsonSchema(_json_quantity(PERCENT))]  # fraction
 VelocityFactor = Annotated[float, PlainValidator(_wrap(parse_velocity_factor)),
                            WithJsonSchema({**_NUMBER_JSON, "description": "velocity factor, 0 to 1"})]
@@ -427,8 +429,14 @@ class LumpedModel(_Model):
             raise ValueError(f"{_plain(exc)} (part {part!r} takes {kind.name})") from None
         return PartValue(x, x)
 
+    @property
+    def part_value(self) -> PartValue:
+        """``value`` as validation left it, in SI units."""
+        assert isinstance(self.value, PartValue)
+        return self.value
 
-ELEMENT_KINDS = ("line", "shunt_stub", "series_stub", "lumped")
+
+ELEMENT_KINDS: tuple[ElementKind, ...] = ("line", "shunt_stub", "series_stub", "lumped")
 
 
 class ElementEntry(_Model):
@@ -457,7 +465,7 @@ class ElementEntry(_Model):
         return self
 
     @property
-    def kind(self) -> str:
+    def kind(self) -> ElementKind:
         return next(k for k in ELEMENT_KINDS if getattr(self, k) is not None)
 
     @property
@@ -850,8 +858,9 @@ class StudyModel(_Model):
 
 
 SECTION_MODELS: dict[str, Any] = {
-    "load": LoadModel, "loads": TypeAdapter(Annotated[list[LoadEntryModel], Field(min_length=1,
-                                                                                    max_length=limits.MAX_LOADS)]), "mask": MaskModel, "network": NetworkModel, "search": SearchModel,
+    "load": LoadModel,
+    "loads": TypeAdapter(Annotated[list[LoadEntryModel], Field(min_length=1, max_length=limits.MAX_LOADS)]),
+    "mask": MaskModel, "network": NetworkModel, "search": SearchModel,
     "shelf": ShelfModel, "drive": DriveModel, "tolerance": ToleranceModel,
 }
 

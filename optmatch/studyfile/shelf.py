@@ -16,7 +16,7 @@ from typing import Any
 
 from optmatch.domain.cables import Cable, merge_catalogs
 from optmatch.domain.microstrip import Substrate, velocity_factor
-from optmatch.domain.network import Bound, ElementSpec, Medium
+from optmatch.domain.network import Bound, ElementKind, ElementSpec, LengthBasis, Medium
 from optmatch.domain.templates import LengthBound
 from optmatch.errors import closest, did_you_mean
 from optmatch.io.catalog import CatalogError, cables_from_mapping, read_catalog, shipped_catalog
@@ -150,7 +150,8 @@ def shelf_context(shelf: ShelfModel | None, catalog: dict[str, Cable], add: Prob
     return ctx
 
 
-def _allowance_delay(refs: list[str | AllowanceModel] | None, ctx: ShelfContext, where: str, add: Problem) -> float | None:
+def _allowance_delay(refs: list[str | AllowanceModel] | None, ctx: ShelfContext, where: str,
+                     add: Problem) -> float | None:
     total = 0.0
     for j, a in enumerate(refs or []):
         if isinstance(a, str):
@@ -232,14 +233,22 @@ def _stock_options(spec, cables: list[Cable], ctx: ShelfContext, where: str,
     return options
 
 
-def shelf_element(kind: str, spec, lb: LengthBound | None, z_sys: float, ctx: ShelfContext, where: str,
+def shelf_element(kind: ElementKind, spec, lb: LengthBound | None, z_sys: float, ctx: ShelfContext, where: str,
                   label: str, add: Problem) -> ElementSpec | None:
     """An element that uses a catalog cable, stock, cut steps, allowances or microstrip."""
     allow_s = _allowance_delay(spec.allowances, ctx, where, add)
     if allow_s is None:
         return None
     end = getattr(spec, "end", None)
-    common = {"end": end, "extra_delay": allow_s, "label": label, "max_voltage_v": _allowance_volts(spec.allowances, ctx)}
+    volts = _allowance_volts(spec.allowances, ctx)
+
+    def element(length: Bound, basis: LengthBasis, media: tuple[Medium, ...], z0_free: Bound | None = None,
+                piece_m: tuple[float | None, ...] = (), cut_step_m: float | None = None) -> ElementSpec:
+        return ElementSpec(kind, length=length, length_basis=basis, media=media, z0_free=z0_free, end=end,
+                           extra_delay=allow_s, piece_m=piece_m, cut_step_m=cut_step_m, label=label,
+                           max_voltage_v=volts)
+
+    media: tuple[Medium, ...]
     if spec.microstrip is not None:
         ms = spec.microstrip
         try:
@@ -261,20 +270,18 @@ def shelf_element(kind: str, spec, lb: LengthBound | None, z_sys: float, ctx: Sh
                 for z in (z0.min, z0.max):
                     velocity_factor(z, sub)
                 media = (Medium(mid, velocity_factor(mid, sub), name="microstrip", printed=sub),)
-                return ElementSpec(kind, length=lb.bound, length_basis=lb.basis, media=media,  # type: ignore[arg-type]
-                                   z0_free=Bound(z0.min, z0.max), **common)
+                return element(lb.bound, lb.basis, media, z0_free=Bound(z0.min, z0.max))
             zs = z0 if isinstance(z0, list) else [float(z0)]
             media = tuple(Medium(z, velocity_factor(z, sub), name="microstrip", printed=sub) for z in zs)
         except ValueError as exc:
             add(f"{where}.z0", str(exc))
             return None
-        return ElementSpec(kind, length=lb.bound, length_basis=lb.basis, media=media, **common)  # type: ignore[arg-type]
+        return element(lb.bound, lb.basis, media)
 
     if spec.cable is None:  # plain z0/vf line with allowances
         lb = _less_allowance(lb, allow_s, where, add) if lb is not None else None
-        return None if lb is None else ElementSpec(kind, length=lb.bound, length_basis=lb.basis,  # type: ignore[arg-type]
-                                                   media=(Medium(spec.z0 if isinstance(spec.z0, (int, float))
-                                                                 else z_sys, spec.vf),), **common)
+        z0_ohm = spec.z0 if isinstance(spec.z0, (int, float)) else z_sys
+        return None if lb is None else element(lb.bound, lb.basis, (Medium(z0_ohm, spec.vf),))
     cables = _cables(spec.cable, ctx, where, add)
     if cables is None:
         return None
@@ -283,8 +290,7 @@ def shelf_element(kind: str, spec, lb: LengthBound | None, z_sys: float, ctx: Sh
         if options is None:
             return None
         media = tuple(c.medium() for c, _ in options)
-        return ElementSpec(kind, length=Bound(0.0, 0.0), length_basis="physical", media=media,  # type: ignore[arg-type]
-                           piece_m=tuple(length for _, length in options), **common)
+        return element(Bound(0.0, 0.0), "physical", media, piece_m=tuple(length for _, length in options))
     assert lb is not None
     media = tuple(c.medium() for c in cables)
     if spec.cut is not None:
@@ -292,14 +298,14 @@ def shelf_element(kind: str, spec, lb: LengthBound | None, z_sys: float, ctx: Sh
         bound = _cut_bound(lb, [c.vf for c in cables], allow_s, step, spec.cut.min.value, where, add)
         if bound is None:
             return None
-        return ElementSpec(kind, length=bound, length_basis="physical", media=media, cut_step_m=step,  # type: ignore[arg-type]
-                           **common)
+        return element(bound, "physical", media, cut_step_m=step)
     lb = _less_allowance(lb, allow_s, where, add)
     if lb is None:
         return None
-    return ElementSpec(kind, length=lb.bound, length_basis=lb.basis, media=media, **common)  # type: ignore[arg-type]
+    return element(lb.bound, lb.basis, media)
 
 
 def uses_shelf(spec) -> bool:
     """Whether a line/stub entry needs :func:`shelf_element` rather than the plain z0/vf path."""
-    return any(getattr(spec, k, None) not in (None, False) for k in ("cable", "stock", "cut", "allowances", "microstrip"))
+    keys = ("cable", "stock", "cut", "allowances", "microstrip")
+    return any(getattr(spec, k, None) not in (None, False) for k in keys)
