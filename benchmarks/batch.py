@@ -1,8 +1,10 @@
 """Batch throughput: studies per hour with 1 and 2 worker processes, and the storage's share of the time.
 
-Run: python benchmarks/batch.py [--studies 8] [--trials 24] [--population 48] [--generations 50]
+Run: python benchmarks/batch.py [--studies 16] [--trials 24] [--population 48] [--generations 50]
 
-The defaults are eight studies the size of the demo study; much smaller studies are dominated by
+The defaults are sixteen studies the size of the demo study (an overnight batch holds more); with eight,
+the helper's start-up (a fresh interpreter importing optmatch, about a second) and the report at the
+start and end weigh more (1.61x measured against 1.93x with sixteen). Much smaller studies are dominated by
 process start-up, results writing and storage bookkeeping, and a second worker then does not pay.
 
 Each study is an invented single-shunt-stub match of a different fixed load on 50 Ω over a narrow band
@@ -15,7 +17,8 @@ most any 2-process scheme can reach on the machine at that moment.  Storage book
 is the wall time this process spends inside the journal storage's methods (every read and write of
 trials, heartbeats and the study clock included), measured in the 1-worker run.  The load average is
 printed before and after, since the machine may be shared.  The last line is
-``batch throughput 2 workers vs 1: <ratio>x``.
+``batch throughput 2 workers vs 1: <ratio>x`` from the medians of ``--repeat`` alternating runs (the
+machine's speed varies from minute to minute; a single run can be off by 20 %).
 """
 
 from __future__ import annotations
@@ -32,6 +35,7 @@ import threading
 import time
 from pathlib import Path
 
+import numpy as np
 from machine import cpu_model
 
 from optmatch.running.batch import run_batch
@@ -154,23 +158,33 @@ def ideal_split(folder: Path, out: Path) -> float:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--studies", type=int, default=8)
+    ap.add_argument("--studies", type=int, default=16)
     ap.add_argument("--trials", type=int, default=24)
     ap.add_argument("--population", type=int, default=48)
     ap.add_argument("--generations", type=int, default=50)
+    ap.add_argument("--repeat", type=int, default=3, help="runs of each kind; the medians are reported")
     args = ap.parse_args()
 
     print(f"machine: {cpu_model()}, {os.cpu_count()} cores, python {platform.python_version()}")
     print("load average before (1, 5, 15 min): " + ", ".join(f"{x:.2f}" for x in os.getloadavg()))
     print(f"studies: {args.studies} × {args.trials} trials (population {args.population}, "
           f"generations {args.generations}), journal file per study")
+    ones, twos, ideals = [], [], []
     with tempfile.TemporaryDirectory(prefix="optmatch-bench-") as tmp:
         folder = Path(tmp) / "studies"
         write_studies(folder, args.studies, args.trials, args.population, args.generations)
-        with StorageClock() as clock:
-            one, one_cpu, _ = timed_batch(folder, Path(tmp) / "out1", workers=1)
-        two, two_own, two_helper = timed_batch(folder, Path(tmp) / "out2", workers=2)
-        ideal = ideal_split(folder, Path(tmp) / "split")
+        for k in range(args.repeat):  # alternately, so a slow spell of the machine hits both kinds of run
+            with StorageClock() as clock:
+                one, one_cpu, _ = timed_batch(folder, Path(tmp) / f"out1-{k}", workers=1)
+            two, two_own, two_helper = timed_batch(folder, Path(tmp) / f"out2-{k}", workers=2)
+            ideal = ideal_split(folder, Path(tmp) / f"split-{k}")
+            ones.append(one)
+            twos.append(two)
+            ideals.append(ideal)
+            print(f"  run {k + 1}: 1 worker {one:.1f} s, 2 workers {two:.1f} s ({one / two:.2f}x), "
+                  f"uncoordinated halves {ideal:.1f} s ({one / ideal:.2f}x)")
+    one, two, ideal = (float(np.median(x)) for x in (ones, twos, ideals))
+    print(f"medians of {args.repeat} runs:")
     per_hour = [args.studies * 3600.0 / t for t in (one, two)]
     print(f"1 worker : {one:7.1f} s  {per_hour[0]:7.0f} studies/hour  (CPU {one_cpu:.1f} s)")
     print(f"2 workers: {two:7.1f} s  {per_hour[1]:7.0f} studies/hour  (CPU {two_own:.1f} s here + "
@@ -183,7 +197,7 @@ def main() -> None:
     print(f"storage bookkeeping, 1 worker: {clock.seconds:.2f} s in {clock.calls} calls "
           f"= {100.0 * clock.seconds / one:.1f} % of the batch's wall time")
     print("load average after (1, 5, 15 min): " + ", ".join(f"{x:.2f}" for x in os.getloadavg()))
-    print(f"batch throughput 2 workers vs 1: {one / two:.2f}x")
+    print(f"batch throughput 2 workers vs 1: {one / two:.2f}x (median of {args.repeat})")
 
 
 if __name__ == "__main__":
