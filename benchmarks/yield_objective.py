@@ -78,7 +78,7 @@ def run_pair(name: str, raw: dict, workdir: Path) -> dict:
     t0 = time.perf_counter()
     out_y = run_search(study_y, optuna.storages.InMemoryStorage())
     wall = time.perf_counter() - t0
-    raw_m = dict(raw, search={**search, "objective": "margin", "trials": 100000, "time": round(wall, 3)})
+    raw_m = dict(raw, search={**search, "objective": "margin", "trials": 100000, "time": f"{wall:.3f}s"})
     study_m = _load(raw_m, workdir, f"{name}-margin")
     t0 = time.perf_counter()
     out_m = run_search(study_m, optuna.storages.InMemoryStorage())
