@@ -689,7 +689,7 @@ def _elements(net: NetworkModel, f_ref: float, z_sys: float, probs: _Problems,
     out: list[ElementSpec] = []
     ok = True
     for i, entry in enumerate(net.elements or ()):
-        kind, spec = entry.kind, entry.spec
+        kind, spec = entry.element_kind, entry.spec
         where = f"network.elements[{i}].{kind}"
         label = f"{kind} {i + 1}"
         if isinstance(spec, LumpedModel):

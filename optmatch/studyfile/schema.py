@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass
-from typing import Annotated, Any, Literal
+from typing import Annotated, Any, ClassVar, Literal
 
 from pydantic import (
     AfterValidator,
@@ -134,6 +134,31 @@ Name = Annotated[str, Field(strict=True, min_length=1, max_length=limits.MAX_NAM
 
 class _Model(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+
+
+class _OneOf(_Model):
+    """A mapping that names exactly one of ``KINDS`` (an element kind, a load kind): more than one is
+    refused before the fields are read (``MANY``), none after (:meth:`_need_a_kind`)."""
+
+    KINDS: ClassVar[tuple[str, ...]] = ()
+    MANY: ClassVar[str] = "give exactly one of {kinds}, found {found}"
+
+    @model_validator(mode="before")
+    @classmethod
+    def _one_kind(cls, data: Any) -> Any:
+        if isinstance(data, dict):
+            known = [k for k in data if k in cls.KINDS]
+            if len(known) > 1:
+                raise ValueError(cls.MANY.format(kinds=", ".join(cls.KINDS), found=", ".join(known)))
+        return data
+
+    def _need_a_kind(self) -> None:
+        if all(getattr(self, k) is None for k in self.KINDS):
+            raise ValueError(f"give one of {', '.join(self.KINDS)}")
+
+    @property
+    def kind(self) -> str:
+        return next(k for k in self.KINDS if getattr(self, k) is not None)
 
 
 def _branch(v: Any) -> str:
@@ -439,7 +464,7 @@ class LumpedModel(_Model):
 ELEMENT_KINDS: tuple[ElementKind, ...] = ("line", "shunt_stub", "series_stub", "lumped")
 
 
-class ElementEntry(_Model):
+class ElementEntry(_OneOf):
     """One list entry of ``network.elements``: exactly one key naming the element kind."""
 
     model_config = ConfigDict(json_schema_extra={"minProperties": 1, "maxProperties": 1})
@@ -449,23 +474,17 @@ class ElementEntry(_Model):
     series_stub: StubModel | None = None
     lumped: LumpedModel | None = None
 
-    @model_validator(mode="before")
-    @classmethod
-    def _one_kind(cls, data: Any) -> Any:
-        if isinstance(data, dict):
-            known = [k for k in data if k in ELEMENT_KINDS]
-            if len(known) > 1:
-                raise ValueError(f"give one element kind per entry, found {', '.join(known)}")
-        return data
+    KINDS: ClassVar[tuple[str, ...]] = ELEMENT_KINDS
+    MANY: ClassVar[str] = "give one element kind per entry, found {found}"
 
     @model_validator(mode="after")
     def _some_kind(self) -> ElementEntry:
-        if all(getattr(self, k) is None for k in ELEMENT_KINDS):
-            raise ValueError(f"give one of {', '.join(ELEMENT_KINDS)}")
+        self._need_a_kind()
         return self
 
     @property
-    def kind(self) -> ElementKind:
+    def element_kind(self) -> ElementKind:
+        """The kind as the network model names it."""
         return next(k for k in ELEMENT_KINDS if getattr(self, k) is not None)
 
     @property
@@ -505,7 +524,7 @@ def _touchstone_name(v: str) -> str:
     return v
 
 
-class LoadModel(_Model):
+class LoadModel(_OneOf):
     """``load``: exactly one of the four kinds."""
 
     model_config = ConfigDict(json_schema_extra={"minProperties": 1, "maxProperties": 1})
@@ -515,24 +534,12 @@ class LoadModel(_Model):
     parallel_rlc: RLCModel | None = None
     touchstone: Annotated[str, Field(strict=True, max_length=4096), AfterValidator(_touchstone_name)] | None = None
 
-    @model_validator(mode="before")
-    @classmethod
-    def _one_kind(cls, data: Any) -> Any:
-        if isinstance(data, dict):
-            known = [k for k in data if k in LOAD_KINDS]
-            if len(known) > 1:
-                raise ValueError(f"give exactly one of {', '.join(LOAD_KINDS)}, found {', '.join(known)}")
-        return data
+    KINDS: ClassVar[tuple[str, ...]] = LOAD_KINDS
 
     @model_validator(mode="after")
     def _some_kind(self) -> LoadModel:
-        if all(getattr(self, k) is None for k in LOAD_KINDS):
-            raise ValueError(f"give one of {', '.join(LOAD_KINDS)}")
+        self._need_a_kind()
         return self
-
-    @property
-    def kind(self) -> str:
-        return next(k for k in LOAD_KINDS if getattr(self, k) is not None)
 
 
 LOAD_NAME_PATTERN = r"^[A-Za-z0-9_.-]+$"
@@ -586,7 +593,7 @@ FilePattern = Annotated[str, Field(strict=True, max_length=4096), AfterValidator
 ENTRY_KINDS = (*LOAD_KINDS, "files")
 
 
-class LoadEntryModel(_Model):
+class LoadEntryModel(_OneOf):
     """One entry of ``loads``: a named load (one of the four kinds, as ``load`` takes them) or a
     file pattern (``files``, every matching Touchstone file a load named by its file name); an
     optional ``weight`` (> 0) counts in the share objective."""
@@ -603,28 +610,16 @@ class LoadEntryModel(_Model):
     touchstone: Annotated[str, Field(strict=True, max_length=4096), AfterValidator(_touchstone_name)] | None = None
     files: FilePattern | None = None
 
-    @model_validator(mode="before")
-    @classmethod
-    def _one_kind(cls, data: Any) -> Any:
-        if isinstance(data, dict):
-            known = [k for k in data if k in ENTRY_KINDS]
-            if len(known) > 1:
-                raise ValueError(f"give exactly one of {', '.join(ENTRY_KINDS)}, found {', '.join(known)}")
-        return data
+    KINDS: ClassVar[tuple[str, ...]] = ENTRY_KINDS
 
     @model_validator(mode="after")
     def _some_kind(self) -> LoadEntryModel:
-        if all(getattr(self, k) is None for k in ENTRY_KINDS):
-            raise ValueError(f"give one of {', '.join(ENTRY_KINDS)}")
+        self._need_a_kind()
         if self.files is not None and self.name is not None:
             raise ValueError("files: each matching file is named by its file name; drop name")
         if self.files is None and self.name is None:
             raise ValueError("name: required key is missing (every load needs a name)")
         return self
-
-    @property
-    def kind(self) -> str:
-        return next(k for k in ENTRY_KINDS if getattr(self, k) is not None)
 
     def as_load(self) -> LoadModel:
         """The entry's load as ``load:`` would take it (not for ``files``)."""
