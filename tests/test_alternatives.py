@@ -165,3 +165,26 @@ def test_alternative_study_is_the_file_with_that_network(tmp_path: Path) -> None
     # the load and mask are the study's: Pozar's 60 − j80 Ω at 2 GHz (4th ed., Example 5.2, recalled from memory)
     assert complex(double.problem.zload[2]) == complex(60, -80)
     assert math.isclose(double.problem.grid.freq[2], 2e9)
+
+
+def test_batch_counts_every_alternatives_trials_against_their_budget(tmp_path: Path) -> None:
+    # Identity: a study with N alternatives runs N searches of `trials` each, so its batch budget is N × trials
+    # and a finished batch shows exactly that many complete trials.
+    from optmatch.running.batch import read_entries, run_batch
+
+    folder = tmp_path / "studies"
+    folder.mkdir()
+    (folder / "two.yaml").write_text("""
+name: two-alternatives
+load: {impedance: 30-j20}
+mask: {segments: [{from: 420MHz, to: 450MHz, return_loss: 12, points: 7}]}
+alternatives:
+  single: {template: single_shunt_stub}
+  series: {template: single_series_stub}
+search: {trials: 2, population: 10, generations: 3, keep: 1}
+tolerance: {samples: 10}
+""")
+    (entry,) = read_entries([folder / "two.yaml"])
+    assert entry.trials_budget == 4
+    (done,) = run_batch(folder, tmp_path / "results")
+    assert done.status == "done" and done.trials_complete == done.trials_budget == 4
