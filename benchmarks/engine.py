@@ -21,7 +21,7 @@ import warnings
 
 import numpy as np
 import skrf
-from machine import cpu_model
+from machine import best_time, cpu_model
 
 from optmatch.engine import Stage, evaluate_reduced, worst_gamma_sq
 
@@ -63,14 +63,6 @@ def skrf_worst(stages, params, j: int) -> float:
         net = el**net
     return float(np.max(np.abs(net.s[:, 0, 0]) ** 2))
 
-
-def best_time(fn, repeats: int) -> float:
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def main() -> None:

@@ -14,11 +14,10 @@ from __future__ import annotations
 
 import argparse
 import os
-import time
 from pathlib import Path
 
 import numpy as np
-from machine import cpu_model
+from machine import best_time, cpu_model
 
 from optmatch.domain.design import Design, performance
 from optmatch.explorer import tuning
@@ -27,14 +26,6 @@ from optmatch.studyfile.loader import load_study
 
 ROOT = Path(__file__).resolve().parents[1]
 
-
-def best_of(fn, repeats: int) -> float:  # noqa: ANN001
-    best = float("inf")
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def main() -> None:
@@ -60,8 +51,8 @@ def main() -> None:
     def curve() -> None:
         performance(problem, design)
 
-    t_move = best_of(move, args.repeats)
-    t_curve = best_of(curve, args.repeats)
+    t_move = best_time(move, args.repeats)
+    t_curve = best_time(curve, args.repeats)
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"machine: {os.cpu_count()} CPUs, {cpu_model()}; load average {load:.2f}")
     print(f"grid: {problem.grid.freq.size} points; Monte Carlo builds per move: {study.spread.samples}")
