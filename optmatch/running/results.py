@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from optmatch import __version__
-from optmatch.domain.design import Design, Performance, bare_load, describe, performance, performances
+from optmatch.domain.design import Design, Performance, bare_load, describe, worst_and_each
 from optmatch.domain.tolerance import monte_carlo
 from optmatch.io.atomic import write_json_atomic, write_text_atomic
 from optmatch.io.paths import child_path
@@ -286,13 +286,9 @@ def build_summary(study: Study, outcome: SearchOutcome, warnings: Sequence[str] 
     """Rank, evaluate each design once, and assemble the summary document."""
     problem = study.problem
     entries, rated = _rated_across(study, outcome)
-    if problem.several:
-        each = [performances(sub.problem, d) for _, sub, d, _ in entries]
-        ranked = [(d, min(ps, key=lambda pf: pf.margin_db), pc)
-                  for (_, _, d, pc), ps in zip(entries, each, strict=True)]
-    else:
-        each = [[] for _ in entries]
-        ranked = [(d, performance(sub.problem, d), pc) for _, sub, d, pc in entries]
+    figures = [worst_and_each(sub.problem, d) for _, sub, d, _ in entries]  # one evaluation per design and load
+    each = [ps for _, ps in figures]
+    ranked = [(d, worst, pc) for (_, _, d, pc), (worst, _) in zip(entries, figures, strict=True)]
     designs = tuple(design_doc(sub, d, perf, k + 1, pc, ps, name)
                     for k, ((name, sub, _, _), (d, perf, pc), ps) in enumerate(zip(entries, ranked, each, strict=True)))
     cases: tuple[LoadCase, ...] = ()
