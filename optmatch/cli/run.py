@@ -129,7 +129,7 @@ def run_run(args: argparse.Namespace) -> int:
         folder, doc = run_study(study, args.out, args.storage, progress_fn=None)
     else:
         with progress() as prog:
-            task = prog.add_task(study.problem.name, total=study.search.trials, status="")
+            task = prog.add_task(study.problem.name, total=study.trial_budget, status="")
 
             def report(done: int, total: int, best: float | None) -> None:
                 if best is None:

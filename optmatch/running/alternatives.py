@@ -48,7 +48,7 @@ def search_study(study: Study, storage: BaseStorage | str, progress: ProgressFn 
     if not study.alternatives:
         return run_search(study, storage, progress=progress, owner=owner)
     per = study.search.trials
-    total = per * len(study.alternatives)
+    total = study.trial_budget
     best: list[float] = []
     parts: list[tuple[str, SearchOutcome]] = []
     for k, alt in enumerate(study.alternatives):

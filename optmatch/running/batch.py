@@ -124,7 +124,7 @@ def read_entries(files: list[Path]) -> list[StudyEntry]:
                                       f"{path}: name: {name!r} is already used by {owner[name]}"))
             continue
         owner[name] = str(path)
-        entries.append(StudyEntry(str(path), name, trials_budget=study.search.trials * max(1, len(study.alternatives)),
+        entries.append(StudyEntry(str(path), name, trials_budget=study.trial_budget,
                                   time_budget_s=study.search.time_s, study=study))
     return entries
 

@@ -140,6 +140,11 @@ class Study:
     loads: tuple[LoadSource, ...] = ()  # every load, in the problem's order (one for ``load:``)
     alternatives: tuple[Alternative, ...] = ()  # several named networks (then ``problem`` is the first one's)
 
+    @property
+    def trial_budget(self) -> int:
+        """Trials the whole study runs: ``search.trials`` for each of its networks."""
+        return self.search.trials * max(1, len(self.alternatives))
+
     def alternative(self, name: str) -> Study:
         """The study of alternative ``name`` (this study itself for ``""`` when it has one network)."""
         if not name and not self.alternatives:
