@@ -40,6 +40,7 @@ from optmatch.outputs.tables import (
     alternative_cells,
     alternatives_markdown,
     build_cells,
+    ceiling_sentence,
     design_cells,
     load_cells,
     load_margin_align,
@@ -356,7 +357,7 @@ def study_html(row: Row, folder: Path) -> str:
         ratings = (f"<h2>Ratings at {best.power.drive_w:g} W</h2>"
                    + (f'<ul class="msg">{items}</ul>' if items else "<p>Within every rating in force.</p>"))
     desc = f'<p class="sub">{_e(s.description)}</p>' if s.description else ""
-    ceiling = f"<p>Bode–Fano {_e(s.feasibility.statement)}.</p>\n" if s.feasibility is not None else ""
+    ceiling = f"<p>{_e(ceiling_sentence(s))}</p>\n" if s.feasibility is not None else ""
     alternatives = ""
     if s.alternatives:
         compared = _html_table(ALTERNATIVE_HEAD, [alternative_cells(a) for a in s.alternatives], ALTERNATIVE_ALIGN)
@@ -452,7 +453,7 @@ def study_markdown(row: Row, folder: Path) -> str:
     lines += ["## The load alone (no network)", "", *table(LOAD_HEAD, load_cells(s.load), "lrrrr"), "",
               load_sentence(s.load), ""]
     if s.feasibility is not None:
-        lines += [f"Bode–Fano {md(s.feasibility.statement)}.", ""]
+        lines += [md(ceiling_sentence(s)), ""]
     for name, caption in PLOTS:
         if (folder / name).exists():
             lines += [f"![{caption}]({name})", ""]

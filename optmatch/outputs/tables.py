@@ -304,6 +304,11 @@ RESULT_FILES = {
 }
 
 
+def ceiling_sentence(doc: SummaryDoc) -> str:
+    """The Bode–Fano ceiling said before the search, as one plain sentence ("" when not known)."""
+    return f"Bode–Fano {doc.feasibility.statement}." if doc.feasibility is not None else ""
+
+
 def matched_input_files(doc: SummaryDoc) -> dict[str, str]:
     """With several loads, the matched input of the best design on each load (up to
     :data:`MANY_LOADS` loads; beyond that on its worst load), by load name: ``matched_input_<load>.s1p``.
@@ -407,7 +412,7 @@ def summary_markdown(doc: SummaryDoc) -> str:
         lines += ["## The load alone (no network)", "", *table(LOAD_HEAD, load_cells(doc.load), "lrrrr"), "",
                   load_sentence(doc.load), ""]
     if doc.feasibility is not None:
-        lines += [f"Bode–Fano {md(doc.feasibility.statement)}.", ""]
+        lines += [md(ceiling_sentence(doc)), ""]
 
     lines += alternatives_markdown(doc)
     if doc.designs:
