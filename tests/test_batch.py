@@ -20,8 +20,10 @@ import optuna
 import pytest
 from test_storage import complete_trials, write_study
 
-from optmatch.running.batch import BatchError, run_batch
+from optmatch.running import helpers
+from optmatch.running.batch import BatchError, BatchListener, StudyEntry, run_batch
 from optmatch.running.claims import BATCH_CLAIM, claim_study, try_claim
+from optmatch.running.cores import pool_threads, threads_per_worker
 from optmatch.running.search import open_study
 from optmatch.running.storage import OWNER_KEY, journal_path, open_journal
 from optmatch.running.worker import Events, StudyWorker
@@ -292,3 +294,45 @@ def test_ctrl_c_stops_every_worker_and_a_rerun_finishes_exactly_the_budgets(tmp_
         summary = json.loads((out / s.problem.name / "summary.json").read_text())
         # Pozar 4th ed. Example 5.2 (recalled from memory): an exact single-stub match exists.
         assert summary["search"]["trials_complete"] == 30 and summary["verdict"] == "PASS"
+
+
+@pytest.mark.parametrize("fork", [True, False], ids=["forked helper", "fresh-interpreter helper"])
+def test_both_kinds_of_helper_take_whole_studies_and_keep_exact_budgets(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch, fork: bool) -> None:
+    folder, out = tmp_path / "studies", tmp_path / "out"
+    folder.mkdir()
+    studies = [load_study(write_study(folder, f"h{k}", trials=12)) for k in range(4)]
+    monkeypatch.setattr(helpers, "can_fork", lambda: fork)
+    seen: list[str] = []
+
+    class Listener(BatchListener):
+        def study_finished(self, entry: StudyEntry) -> None:
+            seen.append(entry.name)
+
+    entries = run_batch(folder, out, workers=2, listener=Listener())
+
+    assert [e.status for e in entries] == ["done"] * 4
+    assert sorted(seen) == [s.problem.name for s in studies]  # the helper's events reached the batch
+    owners: set[int] = set()
+    for s in studies:
+        assert len(complete_trials(s, open_journal(journal_path(out / s.problem.name)))) == 12
+        summary = json.loads((out / s.problem.name / "summary.json").read_text())
+        # Pozar 4th ed. Example 5.2 (recalled from memory): an exact single-stub match exists.
+        assert summary["search"]["trials_complete"] == 12 and summary["verdict"] == "PASS"
+        owners |= _owners(s, out)
+    assert os.getpid() in owners and len(owners) == 2  # this process and one helper ran trials
+    assert (out / "workers" / "helper-1.log").exists()
+
+
+def test_pool_threads_caps_every_loaded_library_and_restores_it() -> None:
+    import scipy.optimize  # noqa: F401  (loads scipy's own OpenBLAS, as the search does)
+    from threadpoolctl import threadpool_info
+
+    before = {p["filepath"]: p["num_threads"] for p in threadpool_info()}
+    assert before, "no thread pool found: numpy and scipy each load one"
+    with pool_threads(1):
+        assert all(p["num_threads"] == 1 for p in threadpool_info())
+    assert {p["filepath"]: p["num_threads"] for p in threadpool_info()} == before
+    # one thread per pool for each of two workers on 2 cores; 3 cores leave 1 each; one worker: untouched
+    assert threads_per_worker(2, cores=2) == 1 and threads_per_worker(2, cores=8) == 4
+    assert threads_per_worker(3, cores=2) == 1 and threads_per_worker(1, cores=2) is None

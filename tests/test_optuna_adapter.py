@@ -8,6 +8,7 @@ range in pyproject.toml in step with the adapter's tested range.
 from __future__ import annotations
 
 import re
+import threading
 from pathlib import Path
 
 import optuna
@@ -45,3 +46,25 @@ def test_pyproject_pins_the_tested_range_and_the_installed_optuna_is_in_it() -> 
     (pin,) = re.findall(r'"optuna([^"]*)"', text)
     assert SpecifierSet(pin) == SpecifierSet(optuna_adapter.TESTED_OPTUNA)
     assert Version(optuna.__version__) in SpecifierSet(pin), f"optuna {optuna.__version__} is outside {pin}"
+
+
+def test_a_trial_interrupted_inside_its_heartbeat_leaves_no_thread_that_blocks_exit(tmp_path: Path) -> None:
+    # An interpreter waits at exit for every non-daemon thread: a beat left running after Ctrl-C kept
+    # an interrupted batch alive forever.  The beat must stop with its block, and be a daemon meanwhile.
+    from optmatch.running.storage import open_journal
+
+    storage = open_journal(tmp_path / "journal.log")
+    ost = optuna.create_study(storage=storage, study_name="beat")
+    trial = ost.ask()
+    seen: list[threading.Thread] = []
+    try:
+        with optuna_adapter.heartbeat(trial, storage):
+            seen = [t for t in threading.enumerate() if t.name.startswith("optmatch-heartbeat")]
+            raise KeyboardInterrupt
+    except KeyboardInterrupt:
+        pass
+    assert len(seen) == 1 and seen[0].daemon
+    seen[0].join(timeout=5.0)
+    assert not seen[0].is_alive()
+    assert optuna_adapter.has_heartbeat(storage)
+    assert storage.stale_trial_ids(optuna_adapter.study_id(ost)) == []  # it beat: the trial is not stale

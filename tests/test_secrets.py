@@ -19,7 +19,9 @@ import pytest
 from sqlalchemy.engine import make_url
 from test_storage import write_study
 
-from optmatch.running.batch import Batch, read_entries
+from optmatch.running.batch import read_entries
+from optmatch.running.helpers import command as helper_command
+from optmatch.running.helpers import environment as helper_environment
 from optmatch.running.storage import StorageError, open_database
 from optmatch.running.storage_url import ENV_STORAGE, check_url, scrub, shown
 
@@ -73,14 +75,13 @@ def test_helpers_get_the_url_from_their_environment_only(tmp_path: Path) -> None
     folder.mkdir()
     write_study(folder, "any", trials=2)
     url = CLOSED.format(password="secret")
-    batch = Batch(folder, tmp_path / "out", url, workers=2)
-    batch.entries = read_entries([folder / "any.yaml"])
-    assert "secret" not in " ".join(batch._helper_command())
-    assert batch._helper_env()[ENV_STORAGE] == url
+    files = [str(e.study.path) for e in read_entries([folder / "any.yaml"]) if e.study is not None]
+    assert "secret" not in " ".join(helper_command(files, tmp_path / "out", share=False, threads=1))
+    assert helper_environment(url)[ENV_STORAGE] == url
 
 
 def _helpers_of(pid: int) -> dict[int, str]:
-    """Command lines of the running ``optmatch worker`` children of ``pid`` (after they started)."""
+    """Command lines of the running children of ``pid``: its helpers, forked or fresh interpreters."""
     found: dict[int, str] = {}
     for entry in Path("/proc").iterdir():
         if not entry.name.isdigit():
@@ -90,7 +91,7 @@ def _helpers_of(pid: int) -> dict[int, str]:
             cmdline = (entry / "cmdline").read_bytes().replace(b"\0", b" ").decode(errors="replace")
         except OSError:
             continue
-        if int(stat[stat.rfind(")") + 2:].split()[1]) == pid and " worker " in cmdline:
+        if int(stat[stat.rfind(")") + 2:].split()[1]) == pid:
             found[int(entry.name)] = cmdline
     return found
 
@@ -105,7 +106,7 @@ def test_a_batch_on_postgresql_leaks_the_password_nowhere(tmp_path: Path) -> Non
     for k in range(3):
         write_study(folder, f"pg-secret-{k}", trials=4, note=uuid.uuid4().hex)  # fresh studies in the database
     proc = subprocess.Popen([sys.executable, "-m", "optmatch", "batch", str(folder), "--out", str(out),
-                             "--storage", PG_URL, "--workers", "2"],
+                             "--workers", "2"], env={**os.environ, ENV_STORAGE: PG_URL},
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     helpers: dict[int, str] = {}
     while proc.poll() is None:
@@ -115,6 +116,7 @@ def test_a_batch_on_postgresql_leaks_the_password_nowhere(tmp_path: Path) -> Non
     assert proc.returncode == 0, stderr
     assert helpers, "the helper process was never seen"
     assert all(password not in cmdline for cmdline in helpers.values())
+    assert password not in " ".join(proc.args)
     assert password not in stdout + stderr
     assert files_holding(out, password) == []
     assert (out / "batch.json").exists() and (out / "workers").is_dir()

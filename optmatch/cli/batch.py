@@ -43,6 +43,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--parent-pid", type=int, default=None, help=argparse.SUPPRESS)
     p.add_argument("--batch-events", action="store_true", help=argparse.SUPPRESS)  # a helper of `batch`
     p.add_argument("--share", action="store_true", help=argparse.SUPPRESS)
+    p.add_argument("--pool-threads", type=int, default=None, help=argparse.SUPPRESS)
     p.set_defaults(handler=run_worker_command)
 
     p = sub.add_parser("report", help="write the batch report (HTML and markdown) over a results folder",
@@ -178,9 +179,11 @@ def run_worker_command(args: argparse.Namespace) -> int:
     storage = from_environment(args.storage)
     if args.batch_events:  # a helper of `batch`: take whole studies, tell the parent on stdout
         from optmatch.running.batch import read_entries
+        from optmatch.running.cores import pool_threads
 
         studies = [e.study for e in read_entries(list(args.files)) if e.study is not None]
-        StudyWorker(studies, args.out, storage, args.share, JsonLineEvents(sys.stdout)).run()
+        with pool_threads(args.pool_threads):
+            StudyWorker(studies, args.out, storage, args.share, JsonLineEvents(sys.stdout)).run()
         return 0
     if args.quiet:
         results = join_files(args.files, storage, args.out)

@@ -3,30 +3,28 @@
 Order of work: the batch takes the results root (``<out>/.batch.lock``; a second batch there is
 refused, naming the first), removes the temporary files killed writes left there, and reads every
 study file (a broken one is recorded with its one-line error and the others go on).  Then
-``workers - 1`` helper processes (``optmatch worker --batch-events``) start on the same files and
-this process works through them too: each worker takes whole studies, runs them and writes their
-results folders itself (:class:`~optmatch.running.worker.StudyWorker`).  Workers share a study only
-when fewer studies than workers remain, or with ``share``.
+``workers - 1`` helper processes start on the same studies (forked, or as fresh interpreters: see
+:mod:`optmatch.running.helpers`) and this process works through them too: each worker takes whole
+studies, runs them and writes their results folders itself
+(:class:`~optmatch.running.worker.StudyWorker`).  Workers share a study only when fewer studies than
+workers remain, or with ``share``.
 
-Helpers tell this process what they do as JSON lines on their stdout; this process alone writes
+Helpers tell this process what they do as JSON lines on a pipe; this process alone writes
 ``batch.json`` (the state of every study, atomically) after every study that ends, and the batch
 report at the start, at the end and at most every :data:`REPORT_EVERY_S` in between, so a partial
 night still leaves a report.  A rerun skips studies whose results are complete
 and resumes the others from their storage; each resumed study gets only the time left of its time
 budget.
 
-The storage URL reaches helpers through their environment (never their command line), and
-``batch.json`` names it without its password.
+The storage URL reaches helpers through their memory or environment (never a command line), and
+``batch.json`` names it without its password.  With several workers, every worker caps the
+numerical libraries' thread pools at its share of the cores (:mod:`optmatch.running.cores`).
 """
 
 from __future__ import annotations
 
 import json
-import os
 import re
-import signal
-import subprocess
-import sys
 import threading
 import time
 from dataclasses import asdict, dataclass, field
@@ -35,10 +33,13 @@ from pathlib import Path
 from optmatch.errors import OptmatchError
 from optmatch.io.atomic import remove_orphan_temp_files, write_json_atomic
 from optmatch.outputs.report import REPORT_HTML, REPORT_MD, write_report
-from optmatch.running.claims import BATCH_CLAIM, REPORT_TARGETS, holder, try_claim
+from optmatch.running import helpers
+from optmatch.running.claims import BATCH_CLAIM, REPORT_TARGETS, Claim, holder, try_claim
+from optmatch.running.cores import pool_threads, threads_per_worker
+from optmatch.running.helpers import ForkedHelper, Helper, InterpreterHelper
 from optmatch.running.results import results_dir
 from optmatch.running.storage import StorageError, open_database
-from optmatch.running.storage_url import ENV_STORAGE, is_url, scrub, shown
+from optmatch.running.storage_url import is_url, scrub, shown
 from optmatch.running.worker import Events, StudyWorker, prepare, replay_event
 from optmatch.studyfile.loader import Study, StudyFileError, load_study
 
@@ -152,7 +153,7 @@ class Batch(Events):
         self.share = share
         self.listener = listener or BatchListener()
         self.entries: list[StudyEntry] = []
-        self.helpers: list[subprocess.Popen] = []
+        self.helpers: list[Helper] = []
         self._readers: list[threading.Thread] = []
         self._lock = threading.RLock()
         self._reported = time.monotonic()
@@ -208,52 +209,39 @@ class Batch(Events):
 
     # -------------------------------------------------------------- helpers
 
-    def _helper_command(self) -> list[str]:
-        """The helper's command line: study files and folders only, never the storage URL."""
-        cmd = [sys.executable, "-m", "optmatch", "worker", *[e.file for e in self.entries if e.study is not None],
-               "--out", str(self.out_root), "--parent-pid", str(os.getpid()), "--batch-events", "--quiet"]
-        return cmd + (["--share"] if self.share else [])
-
-    def _helper_env(self) -> dict[str, str]:
-        """The helper's environment: the storage URL, if any, travels here."""
-        env = dict(os.environ)
-        if self.storage_url is not None:
-            env[ENV_STORAGE] = self.storage_url
-        else:
-            env.pop(ENV_STORAGE, None)
-        return env
-
-    def _start_helpers(self, count: int) -> None:
+    def _start_helpers(self, count: int, claim: Claim) -> None:
         if count < 1:
             return
         logs = self.out_root / "workers"
         logs.mkdir(parents=True, exist_ok=True)
-        cmd, env = self._helper_command(), self._helper_env()
+        studies = [e.study for e in self.entries if e.study is not None]
+        threads = threads_per_worker(self.workers)
+        fork = helpers.can_fork()  # asked once: the readers started below are threads
         for k in range(count):
-            with open(logs / f"helper-{k + 1}.log", "ab") as log:
-                proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=log,
-                                        env=env, text=True)
-            self.helpers.append(proc)
-            reader = threading.Thread(target=self._read_events, args=(proc,), name=f"optmatch-helper-{k + 1}",
+            log = logs / f"helper-{k + 1}.log"
+            if fork:
+                self.helpers.append(ForkedHelper(studies, self.out_root, self.storage_url, self.share, threads,
+                                                 log, claim.release))
+            else:
+                self.helpers.append(InterpreterHelper([str(s.path) for s in studies], self.out_root,
+                                                      self.storage_url, self.share, threads, log))
+        for k, helper in enumerate(self.helpers):
+            reader = threading.Thread(target=self._read_events, args=(helper,), name=f"optmatch-helper-{k + 1}",
                                       daemon=True)
             reader.start()
             self._readers.append(reader)
 
-    def _read_events(self, proc: subprocess.Popen) -> None:
-        assert proc.stdout is not None
-        for line in proc.stdout:
+    def _read_events(self, helper: Helper) -> None:
+        for line in helper.lines():
             replay_event(line, self)
 
     def _stop_helpers(self, interrupt: bool) -> None:
-        for p in self.helpers:
-            if interrupt and p.poll() is None:
-                p.send_signal(signal.SIGINT)
-        for p in self.helpers:
-            try:
-                p.wait(timeout=HELPER_STOP_S if interrupt else None)
-            except subprocess.TimeoutExpired:
-                p.kill()
-                p.wait()
+        for helper in self.helpers:
+            if interrupt:
+                helper.interrupt()
+        for helper in self.helpers:
+            if not helper.wait(timeout=HELPER_STOP_S if interrupt else None):
+                helper.kill()
         for reader in self._readers:
             reader.join(timeout=HELPER_STOP_S)
 
@@ -279,10 +267,10 @@ class Batch(Events):
         if claim is None:
             raise BatchError(f"{self.out_root}: a batch is already running there: "
                              f"{holder(self.out_root / BATCH_CLAIM)}")
-        with claim:
-            return self._run(files)
+        with claim, pool_threads(threads_per_worker(self.workers)):
+            return self._run(files, claim)
 
-    def _run(self, files: list[Path]) -> list[StudyEntry]:
+    def _run(self, files: list[Path], claim: Claim) -> list[StudyEntry]:
         remove_orphan_temp_files(self.out_root, only_targets=frozenset({STATE_NAME, REPORT_HTML, REPORT_MD}))
         self._check_shared_storage()
         self.entries = read_entries(files)
@@ -294,7 +282,7 @@ class Batch(Events):
         try:
             with self._lock:  # helpers' events wait until the listener has seen the batch start
                 if any(not _looks_done(s, self.out_root) for s in todo):
-                    self._start_helpers(self.workers - 1)  # first: a helper takes a second or two to start
+                    self._start_helpers(self.workers - 1, claim)  # first, so they start as early as this one
                 self.listener.batch_started(self.entries)
                 self.save_state()
             StudyWorker(todo, self.out_root, self.storage_url, self.share, self).run()

@@ -13,16 +13,15 @@ pyproject.toml).
 from __future__ import annotations
 
 import inspect
-from collections.abc import Callable
-from typing import TYPE_CHECKING, Any
+import threading
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from typing import Any
 
 import optuna
 from optuna.storages import BaseStorage, RDBStorage
-from optuna.storages._heartbeat import BaseHeartbeat, get_heartbeat_thread, is_heartbeat_enabled
+from optuna.storages._heartbeat import BaseHeartbeat, is_heartbeat_enabled
 from optuna.trial import FrozenTrial
-
-if TYPE_CHECKING:  # the type of what get_heartbeat_thread returns; only the type checker reads it
-    from optuna.storages._heartbeat import BaseHeartbeatThread
 
 TESTED_OPTUNA = ">=4.2,<5.1"
 
@@ -44,10 +43,36 @@ def trial_id(trial: FrozenTrial | optuna.Trial) -> int:
     return trial._trial_id
 
 
-def heartbeat(trial: optuna.Trial, storage: BaseStorage) -> BaseHeartbeatThread:
-    """optuna's heartbeat thread for a running trial, as a ``with`` block (does nothing when the
-    storage has no heartbeat)."""
-    return get_heartbeat_thread(trial_id(trial), storage)
+@contextmanager
+def heartbeat(trial: optuna.Trial, storage: BaseStorage) -> Iterator[None]:
+    """Beat for a running trial while the ``with`` block runs (nothing when the storage has no heartbeat).
+
+    The beats come from a daemon thread started and stopped here rather than optuna's own heartbeat
+    thread: that one is not a daemon, and a Ctrl-C that lands while it starts leaves it beating
+    forever, so the interrupted process never exits.
+    """
+    if not is_heartbeat_enabled(storage):
+        yield
+        return
+    assert isinstance(storage, BaseHeartbeat)
+    interval = storage.get_heartbeat_interval()
+    assert interval is not None
+    stop = threading.Event()
+    tid = trial_id(trial)
+
+    def beat() -> None:
+        while True:
+            storage.record_heartbeat(tid)
+            if stop.wait(interval):
+                return
+
+    thread = threading.Thread(target=beat, name=f"optmatch-heartbeat-{tid}", daemon=True)
+    try:
+        thread.start()
+        yield
+    finally:
+        stop.set()
+        thread.join()  # no beat after the trial's result (an interrupted join: the thread ends alone)
 
 
 def has_heartbeat(storage: BaseStorage) -> bool:
@@ -143,8 +168,8 @@ def private_api_problems() -> list[str]:
          "BaseHeartbeat._get_stale_trial_ids(self, study_id) changed its signature")
     need(_params(BaseHeartbeat.record_heartbeat) == ["self", "trial_id"],
          "BaseHeartbeat.record_heartbeat(self, trial_id) changed its signature")
-    need(_params(get_heartbeat_thread) == ["trial_id", "storage"],
-         "optuna.storages._heartbeat.get_heartbeat_thread(trial_id, storage) changed its signature")
+    need(_params(BaseHeartbeat.get_heartbeat_interval) == ["self"],
+         "BaseHeartbeat.get_heartbeat_interval(self) changed its signature")
     need(_params(is_heartbeat_enabled) == ["storage"],
          "optuna.storages._heartbeat.is_heartbeat_enabled(storage) changed its signature")
     need(callable(getattr(RDBStorage, "_get_stale_trial_ids", None))
