@@ -252,9 +252,10 @@ class Batch(Events):
         if self.storage_url is None or not is_url(self.storage_url):
             return
         try:
-            open_database(self.storage_url)
+            storage = open_database(self.storage_url)
         except StorageError as exc:
             raise BatchError(scrub(" ".join(str(exc).split()), self.storage_url)) from None
+        storage.engine.dispose()  # no pooled connection is left for a forked helper to inherit
 
     def _todo(self) -> list[Study]:
         return [e.study for e in self.entries if e.study is not None and e.status in ("pending", "running")]
