@@ -117,6 +117,18 @@ def test_other_loads_get_an_estimate_with_its_fit_error(tmp_path):
     assert demo.basis == "estimated" and 0 < demo.fit_error < 0.1
 
 
+def test_a_nearly_resistive_load_is_said_to_set_no_practical_limit(tmp_path):
+    # Pozar, 4th ed., sec. 5.9 (recalled from memory), series R–L: ln(1/Γm) = R/(2LΔf) = 50/(2·0.05e-9·200e6)
+    # = 2500 Np = 21715 dB: true, and useless.  No build holds more than about 60 dB (common practice).
+    fz = _feas(tmp_path, "series_rlc: {r: 50, l: 0.05nH}", "1.9GHz", "2.1GHz")
+    assert fz.model == "series RL" and fz.ceiling_return_loss_db == pytest.approx(2500 * NP_TO_DB, rel=1e-6)
+    assert fz.statement().startswith("ceiling: no practical limit (Bode–Fano allows 21715 dB")
+    kept = _feas(tmp_path, "parallel_rlc: {r: 100, c: 3pF}", "900MHz", "1100MHz")  # 72.38 dB, worked above
+    assert "no practical limit" in kept.statement()
+    plain = _feas(tmp_path, "series_rlc: {r: 12, l: 6nH}", "1.6GHz", "2.0GHz")  # 21.71 dB, worked above
+    assert plain.statement().startswith("ceiling: 21.71 dB flat return loss")
+
+
 SMALL_BUDGET = {"trials": 4, "seed": 3, "population": 24, "generations": 25}
 
 

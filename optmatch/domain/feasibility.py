@@ -35,6 +35,9 @@ from optmatch.domain.mask import Grid
 
 NP_TO_DB = 20.0 / math.log(10.0)
 EXACT_FIT = 1e-9  # |ΔΓ| below which a fitted model is the load itself
+# Above this return loss no cut cable and no calibrated VNA holds or shows a match (a fact of the trade,
+# common practice, no source): a ceiling beyond it is stated as "no practical limit", its number kept.
+PRACTICAL_RL_DB = 60.0
 
 ModelName = Literal["parallel RC", "series RC", "series RL", "parallel RL", "series RLC", "parallel RLC",
                     "resistive", "reactive"]
@@ -94,8 +97,14 @@ class Feasibility:
         vals = ", ".join(_fmt_value(k, v) for k, v in self.values.items())
         which = "" if self.limit == self.model else f", its {self.limit} limit"
         whose = f"; the lowest of {self.loads} loads, set by load {self.load}" if self.loads > 1 else ""
-        text = (f"ceiling: {self.ceiling_return_loss_db:.2f} dB flat return loss over the band "
-                f"(Bode–Fano, {self.model} load {vals}{which}; {how}{whose})")
+        ceil = self.ceiling_return_loss_db
+        if ceil > PRACTICAL_RL_DB:  # a nearly resistive load: the bound is true but says nothing useful
+            text = (f"ceiling: no practical limit (Bode–Fano allows {ceil:.0f} dB flat over the band, far above "
+                    f"the {PRACTICAL_RL_DB:.0f} dB any build or measurement holds; {self.model} load "
+                    f"{vals}{which}; {how}{whose})")
+        else:
+            text = (f"ceiling: {ceil:.2f} dB flat return loss over the band "
+                    f"(Bode–Fano, {self.model} load {vals}{which}; {how}{whose})")
         if not self.feasible:
             lead = "By this estimate, no" if self.basis == "estimated" else "No"
             text += (f". {lead} lossless network can meet this mask across the band (it asks for "
