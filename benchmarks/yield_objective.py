@@ -71,15 +71,23 @@ def _limiting(study, design, rob) -> str:
             f"±{abs(worst.db_per_mm) * cut_mm:.2f} dB")
 
 
+def yield_variant(raw: dict) -> dict:
+    """The study searched for yield."""
+    return dict(raw, search={**dict(raw.get("search") or {}), "objective": "yield"})
+
+
+def margin_variant(raw: dict, wall_s: float) -> dict:
+    """The same study searched for margin for ``wall_s`` seconds (the yield search's wall time)."""
+    return dict(raw, search={**dict(raw.get("search") or {}), "objective": "margin", "trials": 100000,
+                             "time": f"{wall_s:.3f}s"})
+
+
 def run_pair(name: str, raw: dict, workdir: Path) -> dict:
-    search = dict(raw.get("search") or {})
-    raw_y = dict(raw, search={**search, "objective": "yield"})
-    study_y = _load(raw_y, workdir, f"{name}-yield")
+    study_y = _load(yield_variant(raw), workdir, f"{name}-yield")
     t0 = time.perf_counter()
     out_y = run_search(study_y, optuna.storages.InMemoryStorage())
     wall = time.perf_counter() - t0
-    raw_m = dict(raw, search={**search, "objective": "margin", "trials": 100000, "time": f"{wall:.3f}s"})
-    study_m = _load(raw_m, workdir, f"{name}-margin")
+    study_m = _load(margin_variant(raw, wall), workdir, f"{name}-margin")
     t0 = time.perf_counter()
     out_m = run_search(study_m, optuna.storages.InMemoryStorage())
     wall_m = time.perf_counter() - t0
