@@ -36,7 +36,7 @@ from optmatch.domain.design import Design, ElementReport
 from optmatch.domain.loads import LoadError, TabulatedLoad
 from optmatch.domain.network import Choice
 from optmatch.errors import OptmatchError
-from optmatch.studyfile.loader import Study, StudyFileError, load_study, study_from_data
+from optmatch.studyfile.loader import IN_MEMORY_FILE, Study, StudyFileError, load_study, study_from_data
 
 if TYPE_CHECKING:  # pragma: no cover - types only
     import skrf
@@ -242,7 +242,7 @@ def study(spec: Mapping | str | os.PathLike | None = None, /, *, loads: Mapping[
         raw["loads"] = entries
     if problems:
         raise StudyFileError(problems)
-    return study_from_data(raw, Path(base_dir) / "<study>", shown=SHOWN, given=given)
+    return study_from_data(raw, Path(base_dir) / IN_MEMORY_FILE, shown=SHOWN, given=given)
 
 
 # ---------------------------------------------------------------- running it

@@ -121,3 +121,19 @@ def test_single_load_result_designs_and_their_networks(tmp_path):
     # the margin against the 12 dB mask, recomputed from scikit-rf's cascade (independent library)
     rl = -20 * np.log10(np.abs(matched.s[:, 0, 0]))
     assert float(np.min(rl - 12.0)) == pytest.approx(second.margin_db, abs=0.01)
+
+
+def test_trimming_a_study_built_in_python_says_why_it_cannot(tmp_path):
+    import subprocess
+    import sys
+
+    st = optmatch.study({"name": "no-file", "load": {"impedance": "60-j80"},
+                         "mask": {"segments": [{"from": "1.9GHz", "to": "2.1GHz", "return_loss": 12}], "points": 11},
+                         "network": {"template": "single_shunt_stub"},
+                         "search": {"trials": 2, "seed": 1, "population": 8, "generations": 4}})
+    result = optmatch.run(st, out=tmp_path)
+    measured = ROOT / "configs" / "data" / "whip_uhf_invented.s1p"
+    run = subprocess.run([sys.executable, "-m", "optmatch", "trim", str(result.folder), "--measured", str(measured)],
+                         capture_output=True, text=True, timeout=120)
+    assert run.returncode == 2 and "Traceback" not in run.stderr
+    assert run.stderr.count("\n") == 1 and "built in Python (optmatch.study)" in run.stderr

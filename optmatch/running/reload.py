@@ -17,7 +17,7 @@ from optmatch.domain.design import Design
 from optmatch.domain.network import Choice
 from optmatch.errors import OptmatchError
 from optmatch.outputs.document import DesignDoc, SummaryDoc, read_summary
-from optmatch.studyfile.loader import Study, load_study
+from optmatch.studyfile.loader import IN_MEMORY_FILE, Study, load_study
 
 MAX_SUMMARY_BYTES = 256 * 2**20
 
@@ -43,6 +43,10 @@ def study_file(folder: Path, doc: SummaryDoc) -> Path:
     """The study file a summary names: as written, or relative to the folder the study ran from
     (``results/<name>/`` inside it)."""
     path = Path(doc.file)
+    if path.name == IN_MEMORY_FILE:
+        raise ReloadError(f"{folder / 'summary.json'}: file: this study was built in Python (optmatch.study), so "
+                          "there is no study file to rebuild its designs from; write the study as a YAML file and "
+                          "run that one to trim or tune it later")
     if not path.is_absolute() and not path.is_file():
         beside = folder.resolve().parent.parent / path
         path = beside if beside.is_file() else path

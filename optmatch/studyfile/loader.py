@@ -394,6 +394,7 @@ def _stem_name(path: Path) -> str:
     return stem if stem and load_name_problem(stem) is None else "load"
 
 
+IN_MEMORY_FILE = "<study>"  # the file name of a study built in Python (optmatch.study): it has no file
 MAX_PATTERN_NAMES = 100_000  # names a pattern may look at before it is refused (work is bounded)
 _MAGIC = re.compile(r"[*?[]")
 
