@@ -323,6 +323,9 @@ def test_cli_trims_a_long_stub_and_writes_its_files(results, tmp_path, capsys):
     # a second run (the terminal view) replaces its own files
     code, out, err = _run(["trim", results, "--measured", measured], capsys)
     assert code == 0 and "element 2" in out and "caution" in out
+    # the terminal and trim.md give the step in the same words (up to the minus sign's typography)
+    step = next(line.strip() for line in out.splitlines() if line.strip().startswith("1. element 2"))
+    assert step.replace("-", "−") + "." in (results / "trim.md").read_text()
 
 
 def test_cli_says_recut_when_no_trim_restores(results, tmp_path, capsys):

@@ -29,6 +29,7 @@ from optmatch.outputs.trim_report import (
     TRIM_PNG,
     json_ready,
     ours,
+    step_text,
     trim_document,
     verdict_text,
     write_trim_files,
@@ -238,8 +239,7 @@ def print_trim(doc: dict) -> None:
     if doc["steps"]:
         out.print("Trim one at a time, largest effect first, and measure again after each:")
         for s in doc["steps"]:
-            out.print(f"  {s['step']}. element {s['element']} ({s['part']}): {s['how']}, {s['trim_mm']:.1f} mm off, "
-                      f"to {s['new_mm']:.1f} mm ({_signed(s['effect_db'])} dB alone)")
+            out.print(f"  {s['step']}. {step_text(s, _signed)}")
     elif doc["restores"]:
         out.print("Nothing to trim: the build meets the mask as it is.")
     if not doc["restores"]:

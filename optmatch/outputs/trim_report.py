@@ -9,7 +9,7 @@ page and the plot).
 from __future__ import annotations
 
 import os
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from pathlib import Path
 
 import numpy as np
@@ -182,6 +182,12 @@ def _sign(v: float) -> str:
     return f"{v:+.2f}".replace("-", "−")
 
 
+def step_text(step: Mapping, sign: Callable[[float], str] = _sign) -> str:
+    """One trim step of the plan as a sentence (the terminal and trim.md say the same words)."""
+    return (f"element {step['element']} ({step['part']}): {step['how']}, {step['trim_mm']:.1f} mm off, "
+            f"to {step['new_mm']:.1f} mm ({sign(step['effect_db'])} dB if made alone)")
+
+
 def trim_markdown(doc: Mapping, plot_name: str | None = TRIM_PNG) -> str:
     """The trim.md page of a trim document."""
     fit, m = doc["fit"], doc["margin_db"]
@@ -217,8 +223,7 @@ def trim_markdown(doc: Mapping, plot_name: str | None = TRIM_PNG) -> str:
                      "(run `optmatch trim` on the new measurement):")
         lines.append("")
         for s in doc["steps"]:
-            lines.append(f"{s['step']}. element {s['element']} ({s['part']}): {s['how']}, {s['trim_mm']:.1f} mm off, "
-                         f"to {s['new_mm']:.1f} mm ({_sign(s['effect_db'])} dB if made alone).")
+            lines.append(f"{s['step']}. {step_text(s)}.")
     elif doc["restores"]:
         lines.append("Nothing to trim: the build meets the mask as it is.")
     else:
