@@ -16,12 +16,11 @@ import tempfile
 from pathlib import Path
 
 import numpy as np
-import skrf
 import yaml
+from skrf_reference import skrf_input_gamma
 
 from optmatch.running.pipeline import run_study
 from optmatch.studyfile.loader import load_study
-from optmatch.units import C0
 
 ROOT = Path(__file__).resolve().parents[1]
 CONFIGS = ROOT / "configs"
@@ -66,16 +65,5 @@ def skrf_margin(freq_hz: np.ndarray, zload: np.ndarray, z_sys: float, min_rl_db:
     ``parts``: per element (kind ``line`` or ``shunt_stub``, end ``open``/``short``/None, length m, Z0 Ω, VF).
     Margin = min over the grid of (return loss − requirement), as the mask defines it.
     """
-    f = skrf.Frequency.from_f(freq_hz, unit="Hz")
-    net = skrf.Network(frequency=f, s=((zload - z_sys) / (zload + z_sys)).reshape(-1, 1, 1), z0=z_sys)
-    for kind, end, length_m, z0, vf in parts:
-        media = skrf.media.DefinedGammaZ0(f, z0_port=z_sys, z0=z0, gamma=1j * 2 * np.pi * freq_hz / (vf * C0))
-        if kind == "line":
-            el = media.line(length_m, unit="m")
-        elif end == "open":
-            el = media.shunt_delay_open(length_m, unit="m")
-        else:
-            el = media.shunt_delay_short(length_m, unit="m")
-        net = el ** net
-    gamma = net.s[:, 0, 0]
+    gamma = skrf_input_gamma(freq_hz, zload, z_sys, parts)
     return float(np.min(-20.0 * np.log10(np.abs(gamma)) - min_rl_db))

@@ -12,6 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import skrf
+from skrf_reference import skrf_input_gamma
 
 from optmatch.bench.asbuilt import BuildModel
 from optmatch.bench.fit import fit_build
@@ -52,19 +53,9 @@ def _problem(media: tuple[Medium, ...], load: object | None = None) -> tuple[Pro
 def _skrf_input(freq: np.ndarray, zload: np.ndarray, media: tuple[Medium, ...], lengths_m: list[float],
                 vf_scale: list[float]) -> np.ndarray:
     """Input reflection of the built network, cascaded by scikit-rf from the load outwards."""
-    f = skrf.Frequency.from_f(freq, unit="Hz")
-    net = skrf.Network(frequency=f, s=((zload - 50) / (zload + 50)).reshape(-1, 1, 1), z0=50)
-    for (kind, end), med, length, scale in zip(KINDS, media, lengths_m, vf_scale, strict=True):
-        vf = med.vf * (1.0 + scale)
-        line = skrf.media.DefinedGammaZ0(f, z0_port=50, z0=med.z0, gamma=1j * 2 * np.pi * freq / (vf * C0))
-        if kind == "line":
-            el = line.line(length, unit="m")
-        elif end == "open":
-            el = line.shunt_delay_open(length, unit="m")
-        else:
-            el = line.shunt_delay_short(length, unit="m")
-        net = el ** net
-    return net.s[:, 0, 0]
+    parts = [(kind, end, length, med.z0, med.vf * (1.0 + scale))
+             for (kind, end), med, length, scale in zip(KINDS, media, lengths_m, vf_scale, strict=True)]
+    return skrf_input_gamma(freq, zload, 50.0, parts)
 
 
 def _nominal_m(media: tuple[Medium, ...]) -> list[float]:
