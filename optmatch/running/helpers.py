@@ -117,9 +117,7 @@ def _forked_main(studies: Sequence[Study], out_root: Path, storage_url: str | No
     try:
         with os.fdopen(write_fd, "w", encoding="utf-8") as stream, pool_threads(threads):
             StudyWorker(studies, out_root, storage_url, share, JsonLineEvents(stream)).run()
-    except KeyboardInterrupt:
-        sys.exit(EXIT_INTERRUPTED)
-    except BrokenPipeError:  # the batch is gone
+    except (KeyboardInterrupt, BrokenPipeError):  # Ctrl-C, or the batch is gone
         sys.exit(EXIT_INTERRUPTED)
 
 
