@@ -336,3 +336,14 @@ def test_pool_threads_caps_every_loaded_library_and_restores_it() -> None:
     # one thread per pool for each of two workers on 2 cores; 3 cores leave 1 each; one worker: untouched
     assert threads_per_worker(2, cores=2) == 1 and threads_per_worker(2, cores=8) == 4
     assert threads_per_worker(3, cores=2) == 1 and threads_per_worker(1, cores=2) is None
+
+
+@pytest.mark.parametrize("value", ["0", "-3", "two"])
+def test_a_helper_refuses_a_pool_size_below_one_in_one_line(tmp_path: Path, value: str) -> None:
+    path = write_study(tmp_path, "any", trials=1)
+    run = subprocess.run([sys.executable, "-m", "optmatch", "worker", str(path), "--out", str(tmp_path / "out"),
+                          "--batch-events", "--quiet", "--pool-threads", value],
+                         capture_output=True, text=True, timeout=120)
+    assert run.returncode == 2 and "Traceback" not in run.stderr
+    assert run.stderr.strip().splitlines()[-1].startswith("optmatch worker: error: argument --pool-threads:")
+    assert not (tmp_path / "out").exists()

@@ -43,7 +43,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--parent-pid", type=int, default=None, help=argparse.SUPPRESS)
     p.add_argument("--batch-events", action="store_true", help=argparse.SUPPRESS)  # a helper of `batch`
     p.add_argument("--share", action="store_true", help=argparse.SUPPRESS)
-    p.add_argument("--pool-threads", type=int, default=None, help=argparse.SUPPRESS)
+    p.add_argument("--pool-threads", type=_at_least_one, default=None, help=argparse.SUPPRESS)
     p.set_defaults(handler=run_worker_command)
 
     p = sub.add_parser("report", help="write the batch report (HTML and markdown) over a results folder",
@@ -51,6 +51,17 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "with a page per study.")
     p.add_argument("folder", type=Path)
     p.set_defaults(handler=run_report_command)
+
+
+def _at_least_one(text: str) -> int:
+    """A count of threads: a whole number, 1 or more."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be at least 1, got {value}")
+    return value
 
 
 def _budget(seconds: float | None) -> str:
